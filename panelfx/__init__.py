@@ -1,0 +1,56 @@
+"""panelfx: longitudinal derived variables for long-format repeated-measures data.
+
+Declare the panel once (``id``, ``time``), pass transforms, get a tidy frame back:
+
+>>> import pandas as pd, panelfx as px
+>>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
+>>> px.derive(df, px.baseline("sbp"), px.change_from_baseline("sbp"), id="pid", time="day")
+   pid  day    sbp  sbp_baseline  sbp_change
+0    1    0  150.0         150.0         0.0
+1    1   14  142.0         150.0        -8.0
+2    2    0  138.0         138.0         0.0
+"""
+
+from __future__ import annotations
+
+from .check import check
+from .derive import derive
+from .errors import (
+    ColumnExistsError,
+    ColumnTypeError,
+    DuplicateOccasionError,
+    MissingColumnError,
+    NotConstantError,
+    NullKeyError,
+    OptionError,
+    PanelError,
+    TimeTypeError,
+)
+from ._transform import Transform
+from .transforms.baseline import baseline
+from .transforms.change_from_baseline import change_from_baseline
+from .transforms.change_from_previous import change_from_previous
+from .transforms.lag import lag
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "derive",
+    "check",
+    "Transform",
+    # transforms
+    "baseline",
+    "change_from_baseline",
+    "change_from_previous",
+    "lag",
+    # errors
+    "PanelError",
+    "MissingColumnError",
+    "NullKeyError",
+    "DuplicateOccasionError",
+    "TimeTypeError",
+    "ColumnTypeError",
+    "ColumnExistsError",
+    "NotConstantError",
+    "OptionError",
+]

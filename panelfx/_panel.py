@@ -1,0 +1,417 @@
+"""The panel engine: declare (id, time) once, validate once, order once.
+
+A :class:`Panel` holds the frame's rows in (subject, time) order as plain numpy arrays
+together with the subject boundaries.  Transforms read sorted columns from it, compute
+on the sorted arrays and hand back results that :meth:`Panel.unsort` scatters into the
+caller's row order.  When the rows already come grouped by subject and in time order
+(checked in O(n)), no sort and no scatter happen at all.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from typing import Any, Hashable, Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+from .errors import (
+    ColumnTypeError,
+    DuplicateOccasionError,
+    MissingColumnError,
+    NullKeyError,
+    OptionError,
+    TimeTypeError,
+    rows_message,
+)
+
+#: Units accepted for datetime time columns, in nanoseconds.  "Y" is the Julian year of
+#: 365.25 days (common practice for person-years and pack-years).
+UNITS_NS: dict[str, int] = {
+    "ns": 1,
+    "us": 1_000,
+    "ms": 1_000_000,
+    "s": 1_000_000_000,
+    "min": 60 * 1_000_000_000,
+    "h": 3_600 * 1_000_000_000,
+    "D": 86_400 * 1_000_000_000,
+    "W": 7 * 86_400 * 1_000_000_000,
+    "Y": int(365.25 * 86_400) * 1_000_000_000,
+}
+
+
+def as_id_list(id: str | Sequence[str]) -> list[str]:
+    """``id`` may name one column or several (e.g. site and subject number)."""
+    if isinstance(id, str):
+        return [id]
+    ids = list(id)
+    if not ids or not all(isinstance(c, str) for c in ids):
+        raise OptionError(f"id must be a column name or a list of column names, got {id!r}")
+    return ids
+
+
+def require_columns(frame: pd.DataFrame, columns: Sequence[str], what: str) -> None:
+    missing = [c for c in columns if c not in frame.columns]
+    if missing:
+        raise MissingColumnError(
+            f"{what} column {missing[0]!r} is not in the frame (columns: {list(frame.columns)[:20]})",
+            column=missing[0],
+            count=len(missing),
+        )
+
+
+def time_kind(series: pd.Series) -> str:
+    """'number', 'datetime' or 'timedelta'; anything else is a :class:`TimeTypeError`."""
+    dtype = series.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        pass
+    elif pd.api.types.is_datetime64_any_dtype(dtype):
+        return "datetime"
+    elif pd.api.types.is_timedelta64_dtype(dtype):
+        return "timedelta"
+    elif pd.api.types.is_numeric_dtype(dtype):
+        return "number"
+    elif isinstance(dtype, pd.ArrowDtype):
+        import pyarrow as pa
+
+        if pa.types.is_timestamp(dtype.pyarrow_dtype) or pa.types.is_date(dtype.pyarrow_dtype):
+            return "datetime"
+        if pa.types.is_duration(dtype.pyarrow_dtype):
+            return "timedelta"
+    hint = ""
+    if pd.api.types.is_string_dtype(dtype) or dtype == object:
+        hint = " Text dates must be parsed first, e.g. frame[col] = pd.to_datetime(frame[col])."
+    raise TimeTypeError(
+        f"time column {series.name!r} has dtype {dtype}: it must hold numbers or datetimes.{hint}",
+        column=str(series.name),
+        count=len(series),
+    )
+
+
+def time_to_native(series: pd.Series, kind: str) -> np.ndarray:
+    """Numbers as float64; datetimes (naive or tz-aware, as instants) and timedeltas as int64 ns."""
+    if kind == "number":
+        return series.to_numpy(dtype="float64", na_value=np.nan)
+    if kind == "datetime":
+        s = series
+        if isinstance(s.dtype, pd.ArrowDtype):
+            s = pd.Series(pd.to_datetime(s), index=s.index)
+        if getattr(s.dtype, "tz", None) is not None:
+            s = s.dt.tz_convert("UTC").dt.tz_localize(None)
+        arr = s.to_numpy(dtype="datetime64[ns]")
+    else:
+        s = series
+        if isinstance(s.dtype, pd.ArrowDtype):
+            s = pd.Series(pd.to_timedelta(s), index=s.index)
+        arr = s.to_numpy(dtype="timedelta64[ns]")
+    return arr.view("int64")
+
+
+NAT = np.iinfo("int64").min
+
+
+class Panel:
+    """Rows of a frame in (subject, time) order, with subject boundaries.
+
+    Attributes (all in sorted order):
+        n: number of rows.  order: original positions of the sorted rows, or ``None``
+        when the input was already in order.  t: times (float64, or int64 ns for
+        datetime/timedelta times).  grp: subject number per row.  starts / ends: first
+        and one-past-last row of each subject.  pos: position within subject (0, 1, ...).
+        size: the subject's number of occasions, per row.
+    """
+
+    def __init__(
+        self,
+        frame: pd.DataFrame,
+        *,
+        id: str | Sequence[str],
+        time: str,
+        unit: str | None = None,
+        strict: bool = True,
+    ) -> None:
+        if not isinstance(frame, pd.DataFrame):
+            raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
+        self.id_cols = as_id_list(id)
+        if not isinstance(time, str):
+            raise OptionError(f"time must be a column name, got {time!r}")
+        self.time_col = time
+        require_columns(frame, self.id_cols, "id")
+        require_columns(frame, [time], "time")
+        if time in self.id_cols:
+            raise OptionError(f"time column {time!r} is also an id column")
+        self.frame = frame
+        self.index = frame.index
+        self.n = len(frame)
+        self.time_kind = time_kind(frame[time])
+        self.unit = self._check_unit(unit)
+        self._extra: dict[str, Any] = {}
+        self._cache: dict[tuple[str, str], np.ndarray] = {}
+
+        codes = self._subject_codes()
+        t = time_to_native(frame[time], self.time_kind)
+        self._check_null_time(t, codes)
+        self.order = self._ordering(codes, t)
+        if self.order is not None:
+            codes = codes[self.order]
+            t = t[self.order]
+        self.t = t
+        is_start = np.empty(self.n, dtype=bool)
+        if self.n:
+            is_start[0] = True
+            np.not_equal(codes[1:], codes[:-1], out=is_start[1:])
+        self.starts = np.flatnonzero(is_start)
+        self.ends = np.append(self.starts[1:], self.n).astype(self.starts.dtype)
+        self.n_subjects = len(self.starts)
+        self.grp = np.cumsum(is_start) - 1
+        self.pos = np.arange(self.n) - self.starts[self.grp]
+        self.size = (self.ends - self.starts)[self.grp]
+        self.repeated = np.zeros(self.n, dtype=bool)  # same subject and time as the row before
+        if self.n > 1:
+            self.repeated[1:] = (~is_start[1:]) & (self.t[1:] == self.t[:-1])
+        if strict:
+            self._check_duplicates()
+
+    # ------------------------------------------------------------------ set-up
+    def _check_unit(self, unit: str | None) -> str | None:
+        if unit is None:
+            return "D" if self.time_kind != "number" else None
+        if self.time_kind == "number":
+            raise OptionError(
+                f"unit={unit!r} applies to datetime or timedelta times only; time column "
+                f"{self.time_col!r} holds numbers, whose own units are used"
+            )
+        if unit not in UNITS_NS:
+            raise OptionError(f"unit must be one of {sorted(UNITS_NS)}, got {unit!r}")
+        return unit
+
+    def _subject_codes(self) -> np.ndarray:
+        """Integer subject codes numbered in order of first appearance."""
+        frame = self.frame
+        nulls = np.zeros(self.n, dtype=bool)
+        for c in self.id_cols:
+            nulls |= frame[c].isna().to_numpy()
+        if nulls.any():
+            bad = self.index[nulls]
+            raise NullKeyError(
+                rows_message("missing subject id", self.id_cols[0] if len(self.id_cols) == 1 else str(self.id_cols),
+                             int(nulls.sum()), list(bad), noun="row labels"),
+                column=self.id_cols[0],
+                count=int(nulls.sum()),
+                ids=list(bad),
+            )
+        if len(self.id_cols) == 1:
+            codes, _ = pd.factorize(frame[self.id_cols[0]], sort=False)
+            return codes.astype(np.int64, copy=False)
+        combined = np.zeros(self.n, dtype=np.int64)
+        for c in self.id_cols:
+            k, uniq = pd.factorize(frame[c], sort=False)
+            combined = combined * (len(uniq) + 1) + k
+        codes, _ = pd.factorize(combined, sort=False)
+        return codes.astype(np.int64, copy=False)
+
+    def _check_null_time(self, t: np.ndarray, codes: np.ndarray) -> None:
+        null = np.isnan(t) if t.dtype.kind == "f" else (t == NAT)
+        if null.any():
+            raise NullKeyError(
+                rows_message("missing time", self.time_col, int(null.sum()), self.ids_at(np.flatnonzero(null), sorted_=False)),
+                column=self.time_col,
+                count=int(null.sum()),
+                ids=self.ids_at(np.flatnonzero(null), sorted_=False),
+            )
+
+    def _ordering(self, codes: np.ndarray, t: np.ndarray) -> np.ndarray | None:
+        """``None`` when rows already come grouped by subject and in time order (O(n) check)."""
+        if self.n < 2:
+            return None
+        same = codes[1:] == codes[:-1]
+        # First-appearance codes are non-decreasing exactly when each subject's rows are contiguous.
+        # Ties in time are left in place: they are duplicates, reported by the caller.
+        if np.all(codes[1:] >= codes[:-1]) and np.all(t[1:][same] >= t[:-1][same]):
+            return None
+        return np.lexsort((t, codes))
+
+    def _check_duplicates(self) -> None:
+        dup = self.repeated
+        if dup.any():
+            where = np.flatnonzero(dup)
+            ids = self.ids_at(where)
+            raise DuplicateOccasionError(
+                rows_message(
+                    f"duplicate (id, time): {len(where)} repeated occasion(s); keep one row per subject and time",
+                    self.time_col, int(dup.sum()), ids,
+                ),
+                column=self.time_col,
+                count=int(dup.sum()),
+                ids=ids,
+            )
+
+    # ------------------------------------------------------------------ access
+    def original_positions(self, sorted_positions: np.ndarray) -> np.ndarray:
+        return sorted_positions if self.order is None else self.order[sorted_positions]
+
+    def ids_at(self, positions: np.ndarray, *, sorted_: bool = True, limit: int = 5) -> list[Hashable]:
+        """Subject ids (tuples for several id columns) at the first few positions, distinct."""
+        pos = np.asarray(positions)[: max(limit * 20, limit)]
+        if sorted_:
+            pos = self.original_positions(pos)
+        cols = [self.frame[c].iloc[pos].tolist() for c in self.id_cols]
+        vals = cols[0] if len(cols) == 1 else list(zip(*cols))
+        return list(dict.fromkeys(vals))[:limit]
+
+    def add_column(self, name: str, values: Any) -> None:
+        """Make a column computed by an earlier transform visible to later ones."""
+        self._extra[name] = values
+
+    def has_column(self, name: str) -> bool:
+        return name in self._extra or name in self.frame.columns
+
+    def series(self, col: str) -> pd.Series:
+        """A column in the caller's row order (input or derived so far)."""
+        if col in self._extra:
+            return self._extra[col]
+        if col not in self.frame.columns:
+            raise MissingColumnError(f"column {col!r} is not in the frame", column=col, count=1)
+        return self.frame[col]
+
+    def sort(self, values: np.ndarray) -> np.ndarray:
+        """Original row order -> sorted order."""
+        return values if self.order is None else values[self.order]
+
+    def unsort(self, values: np.ndarray) -> np.ndarray:
+        """Sorted order -> the caller's row order."""
+        if self.order is None:
+            return values
+        out = np.empty_like(values)
+        out[self.order] = values
+        return out
+
+    def missing(self, col: str) -> np.ndarray:
+        """Missing-value mask of any column, sorted order."""
+        key = (col, "missing")
+        if key not in self._cache:
+            self._cache[key] = self.sort(self.series(col).isna().to_numpy())
+        return self._cache[key]
+
+    def numeric(self, col: str) -> np.ndarray:
+        """A column as float64 in sorted order, missing values as NaN; text is an error."""
+        key = (col, "numeric")
+        if key not in self._cache:
+            self._cache[key] = self.sort(to_float(self.series(col), self))
+        return self._cache[key]
+
+    def flags(self, col: str) -> tuple[np.ndarray, np.ndarray]:
+        """A true/false column in sorted order as (is_true, is_missing) boolean arrays.
+
+        Accepts booleans (numpy or nullable) and numbers where 0 is false and any other
+        number true; text is an error.
+        """
+        s = self.series(col)
+        if pd.api.types.is_bool_dtype(s.dtype):
+            missing = s.isna().to_numpy()
+            true = s.to_numpy(dtype=bool, na_value=False)
+        else:
+            v = to_float(s, self)
+            missing = np.isnan(v)
+            true = (v != 0) & ~missing
+        return self.sort(true), self.sort(missing)
+
+    def gather(self, col: str, source: np.ndarray) -> Any:
+        """Values of ``col`` taken from sorted positions ``source`` (-1: missing), in caller order.
+
+        Keeps the column's dtype (upcast by pandas where it cannot hold a missing value).
+        """
+        values = self.series(col).array
+        src = np.where(source >= 0, self.original_positions(np.maximum(source, 0)), -1)
+        return pd.api.extensions.take(values, self.unsort(src), allow_fill=True)
+
+    # ------------------------------------------------------------------ time
+    def time_values(self, col: str) -> np.ndarray:
+        """Another column holding times (e.g. a reference date) in native units, sorted order."""
+        s = self.series(col)
+        try:
+            kind = time_kind(s)
+        except TimeTypeError as err:
+            raise TimeTypeError(str(err).replace("time column", "column"), column=col) from None
+        if kind != self.time_kind:
+            raise TimeTypeError(
+                f"column {col!r} holds {kind} values but the time column {self.time_col!r} holds {self.time_kind} values",
+                column=col,
+            )
+        return self.sort(time_to_native(s, kind))
+
+    def native_to_time(self, t: np.ndarray) -> pd.Series:
+        """Native times back to the time column's kind (numbers, or timestamps in its zone)."""
+        if self.time_kind == "number":
+            return pd.Series(t, dtype="float64")
+        if self.time_kind == "timedelta":
+            return pd.Series(t.view("timedelta64[ns]"))
+        out = pd.Series(t.view("datetime64[ns]"))
+        tz = getattr(self.frame[self.time_col].dtype, "tz", None)
+        return out.dt.tz_localize("UTC").dt.tz_convert(tz) if tz is not None else out
+
+    def is_time_missing(self, t: np.ndarray) -> np.ndarray:
+        return np.isnan(t) if t.dtype.kind == "f" else (t == NAT)
+
+    def duration(self, delta: np.ndarray) -> np.ndarray:
+        """Differences of native times as float64 durations: time-column units for numbers,
+        ``unit`` (default days) for datetimes and timedeltas."""
+        if self.time_kind == "number":
+            return delta.astype("float64", copy=False)
+        return delta.astype("float64") / UNITS_NS[self.unit or "D"]
+
+    def span(self, value: Any, what: str = "span") -> float | int:
+        """A window length or offset in native time units, checked against the time column's type."""
+        if self.time_kind == "number":
+            if isinstance(value, (str, pd.Timedelta, _dt.timedelta, np.timedelta64)) or isinstance(value, bool) \
+                    or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise OptionError(
+                    f"{what}={value!r} does not fit time column {self.time_col!r}, which holds numbers: "
+                    f"give a number in its units"
+                )
+            return float(value)
+        if isinstance(value, (str, pd.Timedelta, _dt.timedelta, np.timedelta64)):
+            try:
+                return int(pd.Timedelta(value).value)
+            except ValueError:
+                raise OptionError(f"{what}={value!r} is not a time span such as '90D'") from None
+        raise OptionError(
+            f"{what}={value!r} does not fit time column {self.time_col!r}, which holds {self.time_kind} values: "
+            f"give a timedelta or a string such as '90D'"
+        )
+
+
+def to_float(s: pd.Series, panel: Panel | None = None) -> np.ndarray:
+    """Numbers (numpy, nullable or Arrow-backed; booleans as 0/1) as float64 with NaN for missing.
+
+    Text is never parsed: a column of strings, or objects that are not all numbers, is a
+    :class:`ColumnTypeError` naming the count and first ids of the text values.
+    """
+    dtype = s.dtype
+    if pd.api.types.is_bool_dtype(dtype) or (
+        pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_complex_dtype(dtype)
+    ):
+        return s.to_numpy(dtype="float64", na_value=np.nan)
+    if dtype == object:
+        kind = pd.api.types.infer_dtype(s, skipna=True)
+        if kind in ("integer", "floating", "mixed-integer-float", "decimal", "empty", "boolean"):
+            return pd.to_numeric(s).to_numpy(dtype="float64", na_value=np.nan)
+    if pd.api.types.is_datetime64_any_dtype(dtype) or pd.api.types.is_timedelta64_dtype(dtype):
+        raise ColumnTypeError(
+            f"column {s.name!r} holds {dtype} values where numbers are needed", column=str(s.name), count=len(s)
+        )
+    bad = s.notna().to_numpy()
+    if dtype == object:
+        bad &= ~pd.to_numeric(s, errors="coerce").notna().to_numpy() | s.str.len().notna().to_numpy()
+    where = np.flatnonzero(bad)
+    ids = panel.ids_at(where, sorted_=False) if panel is not None else list(s.index[where[:5]])
+    raise ColumnTypeError(
+        rows_message(
+            f"text where numbers are needed (dtype {dtype}); panelfx does not parse text, convert it first "
+            f"(e.g. pd.to_numeric)",
+            str(s.name), len(where), ids,
+        ),
+        column=str(s.name),
+        count=len(where),
+        ids=ids,
+    )

@@ -1,0 +1,185 @@
+"""``check``: a tidy report of the panel's structural problems, one row per finding."""
+
+from __future__ import annotations
+
+from typing import Any, Sequence
+
+import numpy as np
+import pandas as pd
+
+from ._panel import Panel, as_id_list, require_columns, time_kind
+from .errors import OptionError
+
+#: Columns of the report, in order.
+REPORT_COLUMNS = ["problem", "severity", "id", "row", "time", "detail"]
+
+#: problem -> severity.  "fatal" problems make :func:`panelfx.derive` refuse the frame.
+PROBLEMS = {
+    "null_id": "fatal",
+    "null_time": "fatal",
+    "duplicate": "fatal",
+    "missed": "warning",
+    "early": "warning",
+    "late": "warning",
+    "extra": "warning",
+    "single_occasion": "note",
+    "not_in_order": "note",
+}
+
+
+def check(
+    frame: pd.DataFrame,
+    *,
+    id: str | Sequence[str],
+    time: str,
+    spacing: Any = None,
+    tolerance: Any = None,
+    notes: bool = False,
+) -> pd.DataFrame:
+    """Report structural problems of a long-format panel; an empty frame when all is well.
+
+    One row per finding with columns ``problem``, ``severity`` (``fatal``, ``warning`` or
+    ``note``), ``id`` (the subject id; a tuple when ``id`` names several columns), ``row``
+    (the row label; missing for a scheduled occasion that has no row), ``time`` and
+    ``detail``.  Problems:
+
+    - ``null_id``, ``null_time``: a missing id or time (fatal);
+    - ``duplicate``: more than one row for the same (id, time), every such row (fatal);
+    - with ``spacing`` (the planned interval between occasions, counted from each
+      subject's first occasion: a number, or a timedelta such as ``"30D"`` for datetimes),
+      each occasion is matched to the nearest scheduled one (numbered 0 at the subject's
+      first occasion, 1 one spacing later, ...): ``early`` / ``late`` when it
+      is more than ``tolerance`` (default a quarter of ``spacing``) away from it,
+      ``missed`` for each scheduled occasion between two visits that has no visit (its
+      ``time`` is the planned time), ``extra`` for a second visit matched to the same
+      scheduled occasion.  Scheduled occasions after a subject's last visit are not
+      reported: the end of planned follow-up is not known here.
+    - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
+      when rows are not grouped by subject in time order; harmless for panelfx).
+
+    Missing columns and a time column of text still raise, as in :func:`derive`.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 31, 95, 0, 0]})
+    >>> px.check(df, id="pid", time="day", spacing=30, tolerance=4)
+         problem severity  id   row  time                                          detail
+    0  duplicate    fatal   2     3     0                    2 rows share this (id, time)
+    1  duplicate    fatal   2     4     0                    2 rows share this (id, time)
+    2     missed  warning   1  None  60.0               scheduled occasion 2 has no visit
+    3       late  warning   1     2    95  5.0 after scheduled occasion 3 (tolerance 4.0)
+    """
+    id_cols = as_id_list(id)
+    require_columns(frame, [*id_cols, time], "id/time")
+    time_kind(frame[time])
+    parts: list[pd.DataFrame] = []
+
+    null_id = np.zeros(len(frame), dtype=bool)
+    for c in id_cols:
+        null_id |= frame[c].isna().to_numpy()
+    null_time = frame[time].isna().to_numpy()
+    for problem, mask, text in (("null_id", null_id, "subject id is missing"),
+                                ("null_time", null_time & ~null_id, "time is missing")):
+        if mask.any():
+            parts.append(_rows(frame, id_cols, time, np.flatnonzero(mask), problem, text))
+
+    keep = ~(null_id | null_time)
+    sub = frame if keep.all() else frame.loc[keep]
+    panel = Panel(sub, id=id_cols, time=time, strict=False)
+    positions = np.flatnonzero(keep)  # frame positions of sub's rows
+
+    if notes and panel.order is not None:
+        parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(np.array([0]))],
+                           "not_in_order", "rows are not grouped by subject in time order (panelfx sorts them)"))
+    dup = panel.repeated.copy()
+    dup[:-1] |= panel.repeated[1:]
+    if dup.any():
+        # number of rows sharing each duplicated time
+        run = np.cumsum(~panel.repeated)
+        counts = np.bincount(run)[run]
+        where = np.flatnonzero(dup)
+        detail = pd.Series(counts[where]).astype(str) + " rows share this (id, time)"
+        parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(where)], "duplicate", detail))
+
+    if spacing is not None:
+        parts.extend(_schedule(frame, panel, positions, id_cols, time, spacing, tolerance))
+    elif tolerance is not None:
+        raise OptionError("tolerance= needs spacing= (the planned interval between occasions)")
+
+    if notes:
+        single = np.flatnonzero(panel.size[panel.starts] == 1) if panel.n else np.array([], dtype=int)
+        if len(single):
+            pos = positions[panel.original_positions(panel.starts[single])]
+            parts.append(_rows(frame, id_cols, time, pos, "single_occasion", "subject has one occasion only"))
+
+    if not parts:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in REPORT_COLUMNS})
+    report = pd.concat(parts, ignore_index=True)
+    order = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
+    report = report.assign(_o=order.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
+    return report.reset_index(drop=True)[REPORT_COLUMNS]
+
+
+def _ids(frame: pd.DataFrame, id_cols: Sequence[str], pos: np.ndarray) -> list[Any]:
+    cols = [frame[c].iloc[pos].tolist() for c in id_cols]
+    return cols[0] if len(cols) == 1 else list(zip(*cols))
+
+
+def _rows(frame: pd.DataFrame, id_cols: Sequence[str], time: str, pos: np.ndarray, problem: str,
+          detail: Any) -> pd.DataFrame:
+    return pd.DataFrame({
+        "problem": problem,
+        "severity": PROBLEMS[problem],
+        "id": _ids(frame, id_cols, pos),
+        "row": frame.index[pos].to_numpy(dtype=object),
+        "time": frame[time].iloc[pos].to_numpy(dtype=object),
+        "detail": detail if isinstance(detail, str) else np.asarray(detail, dtype=object),
+    })
+
+
+def _schedule(frame: pd.DataFrame, panel: Panel, positions: np.ndarray, id_cols: Sequence[str], time: str,
+              spacing: Any, tolerance: Any) -> list[pd.DataFrame]:
+    step = panel.span(spacing, "spacing")
+    if step <= 0:
+        raise OptionError(f"spacing must be positive, got {spacing!r}")
+    tol = step / 4 if tolerance is None else panel.span(tolerance, "tolerance")
+    if tol < 0:
+        raise OptionError(f"tolerance must not be negative, got {tolerance!r}")
+    if panel.n == 0:
+        return []
+    t0 = panel.t[panel.starts][panel.grp]
+    rel = (panel.t - t0).astype("float64")
+    slot = np.rint(rel / step)
+    dev = rel - slot * step
+    parts = []
+
+    def words(x: np.ndarray) -> pd.Series:
+        return pd.Series(panel.duration(x)).round(6).astype(str)
+
+    for problem, mask, text in (("early", dev < -tol, " before"), ("late", dev > tol, " after")):
+        where = np.flatnonzero(mask)
+        if len(where):
+            detail = (words(np.abs(dev[where])) + text + " scheduled occasion "
+                      + pd.Series(slot[where]).astype(int).astype(str)
+                      + f" (tolerance {float(panel.duration(np.array([tol]))[0])})")
+            parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(where)], problem, detail))
+
+    prev_slot = np.where(panel.pos > 0, np.roll(slot, 1), np.nan)
+    gap = np.where(panel.repeated, 0, slot - prev_slot - 1)
+    extra = np.flatnonzero((gap == -1) & ~panel.repeated)
+    if len(extra):
+        detail = "second visit matched to scheduled occasion " + pd.Series(slot[extra]).astype(int).astype(str)
+        parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(extra)], "extra", detail))
+    n_missed = np.where(gap > 0, gap, 0).astype(np.int64)
+    if n_missed.any():
+        after = np.repeat(np.arange(panel.n), n_missed)  # the visit that follows each missed slot
+        k = np.arange(len(after)) - np.repeat(np.cumsum(n_missed) - n_missed, n_missed)
+        missed_slot = prev_slot[after] + 1 + k
+        expected = t0[after] + (missed_slot * step).astype(panel.t.dtype)
+        pos = positions[panel.original_positions(after)]
+        part = _rows(frame, id_cols, time, pos, "missed", "")
+        part["row"] = None
+        part["time"] = panel.native_to_time(expected).to_numpy(dtype=object)
+        part["detail"] = ("scheduled occasion " + pd.Series(missed_slot).astype(int).astype(str)
+                          + " has no visit").to_numpy(dtype=object)
+        parts.append(part)
+    return parts

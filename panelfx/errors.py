@@ -1,0 +1,92 @@
+"""Typed errors raised by panelfx.
+
+Every error derives from :class:`PanelError` and also from the builtin it really is
+(a missing column is a ``KeyError``, a wrong dtype a ``TypeError``, a bad value a
+``ValueError``), so ``except KeyError`` in old code keeps working.  The pieces of the
+message are kept as attributes: ``column``, ``count`` and ``ids`` (the first few
+offending subject ids or row labels).
+"""
+
+from __future__ import annotations
+
+from typing import Any, Sequence
+
+__all__ = [
+    "PanelError",
+    "MissingColumnError",
+    "NullKeyError",
+    "DuplicateOccasionError",
+    "TimeTypeError",
+    "ColumnTypeError",
+    "ColumnExistsError",
+    "NotConstantError",
+    "OptionError",
+]
+
+#: How many offending ids an error message shows.
+SHOW_IDS = 5
+
+
+def _fmt_ids(ids: Sequence[Any]) -> str:
+    shown = ", ".join(repr(i) for i in list(ids)[:SHOW_IDS])
+    more = " ..." if len(ids) > SHOW_IDS else ""
+    return f"[{shown}{more}]"
+
+
+class PanelError(Exception):
+    """Base class of every error panelfx raises about the data or the options."""
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        column: str | None = None,
+        count: int | None = None,
+        ids: Sequence[Any] = (),
+    ) -> None:
+        super().__init__(message)
+        self.message = message
+        self.column = column
+        self.count = count
+        self.ids = list(ids)[:SHOW_IDS]
+
+    def __str__(self) -> str:  # KeyError would otherwise print the repr of the message
+        return self.message
+
+
+class MissingColumnError(PanelError, KeyError):
+    """A column named in the panel declaration or in a transform is not in the frame."""
+
+
+class NullKeyError(PanelError, ValueError):
+    """An id or time value is missing."""
+
+
+class DuplicateOccasionError(PanelError, ValueError):
+    """Two rows share the same (id, time): occasions must be unique within subject."""
+
+
+class TimeTypeError(PanelError, TypeError):
+    """The time column (or a value compared with it) is neither numbers nor datetimes."""
+
+
+class ColumnTypeError(PanelError, TypeError):
+    """A column holds values of the wrong type, e.g. text where numbers are needed."""
+
+
+class ColumnExistsError(PanelError, ValueError):
+    """A derived column would overwrite a column that already exists."""
+
+
+class NotConstantError(PanelError, ValueError):
+    """A column that must be constant within subject varies."""
+
+
+class OptionError(PanelError, ValueError):
+    """A transform or function option has a value outside its rules."""
+
+
+def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:
+    """Build the standard message: what went wrong, in which column, how many rows, first ids."""
+    where = f" in column {column!r}" if column is not None else ""
+    return f"{what}{where}: {count} row{'s' if count != 1 else ''}; first {noun}: {_fmt_ids(ids)}"

@@ -1,0 +1,1 @@
+"""One module per transform; each exposes a constructor function and its frozen class."""
