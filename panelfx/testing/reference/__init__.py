@@ -1,0 +1,139 @@
+"""Deliberately simple reference implementations of every transform, for cross-checks only.
+
+Slow on purpose: plain Python loops over each subject's rows in time order, written
+straight from each transform's documented definition, sharing no code with the
+vectorised kernels.  Use them in tests on small frames (hundreds of rows), never in
+production.
+
+>>> import pandas as pd, panelfx as px
+>>> from panelfx.testing import reference
+>>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [5, 0, 0], "y": [3.0, 1.0, 7.0]})
+>>> reference(df, px.change_from_baseline("y"), id="pid", time="day")
+   pid  day    y  y_change
+0    1    5  3.0       2.0
+1    1    0  1.0       0.0
+2    2    0  7.0       0.0
+"""
+
+from __future__ import annotations
+
+import importlib
+import math
+import pkgutil
+from dataclasses import dataclass
+from typing import Any, Callable, Sequence
+
+import pandas as pd
+
+from ..._transform import Transform
+
+#: type_name -> function(transform, subject) returning one list of values per output.
+REFERENCES: dict[str, Callable[[Any, "Subject"], list[list[Any]]]] = {}
+
+#: nanoseconds per unit, written out again here on purpose (independent of the engine).
+_NS = {"ns": 1, "us": 1e3, "ms": 1e6, "s": 1e9, "min": 60e9, "h": 3600e9, "D": 86400e9,
+       "W": 7 * 86400e9, "Y": 365.25 * 86400e9}
+
+
+def register(type_name: str) -> Callable[[Callable], Callable]:
+    """Register the reference function of one transform type."""
+
+    def deco(fn: Callable) -> Callable:
+        REFERENCES[type_name] = fn
+        return fn
+
+    return deco
+
+
+def is_missing(v: Any) -> bool:
+    if v is None or v is pd.NA or v is pd.NaT:
+        return True
+    try:
+        return bool(isinstance(v, float) and math.isnan(v))
+    except TypeError:
+        return False
+
+
+@dataclass
+class Subject:
+    """One subject's rows in time order, as plain Python values."""
+
+    rows: pd.DataFrame  # the subject's rows, sorted by time
+    times: list[float]  # numbers, or nanoseconds for datetimes / timedeltas
+    unit: str | None  # unit of durations for datetime times; None for numeric times
+
+    def raw(self, col: str) -> list[Any]:
+        """Values as Python objects, None where missing."""
+        return [None if is_missing(v) else v for v in self.rows[col].tolist()]
+
+    def values(self, col: str) -> list[float]:
+        """Values as floats, NaN where missing."""
+        return [math.nan if v is None else float(v) for v in self.raw(col)]
+
+    def duration(self, later: float, earlier: float) -> float:
+        """Elapsed time between two native times, in the panel's unit."""
+        d = later - earlier
+        return float(d) if self.unit is None else d / _NS[self.unit]
+
+    def native(self, v: Any) -> float:
+        """A time value (number, Timestamp, Timedelta) in native units."""
+        if isinstance(v, (pd.Timestamp, pd.Timedelta)):
+            return v.value
+        return float(v)
+
+    def span(self, value: Any) -> float:
+        """A window length in native units: numbers as they are, strings/timedeltas in ns."""
+        if self.unit is None:
+            return float(value)
+        return pd.Timedelta(value).value
+
+
+def _load_all() -> None:
+    for mod in pkgutil.iter_modules(__path__):
+        importlib.import_module(f"{__name__}.{mod.name}")
+
+
+def reference(
+    frame: pd.DataFrame,
+    *transforms: Transform,
+    id: str | Sequence[str],
+    time: str,
+    unit: str | None = None,
+) -> pd.DataFrame:
+    """What :func:`panelfx.derive` should return, computed the slow, obvious way.
+
+    Outputs come back as float64 where every value is a number (or missing), else as
+    object columns; compare with :func:`panelfx.testing.assert_matches_reference`.
+    """
+    if not REFERENCES:
+        _load_all()
+    id_cols = [id] if isinstance(id, str) else list(id)
+    work = frame.copy()
+    is_dt = not pd.api.types.is_numeric_dtype(frame[time].dtype) or pd.api.types.is_bool_dtype(frame[time].dtype)
+    unit = (unit or "D") if is_dt else None
+    # Group row positions by subject with a plain dict, then sort each by time.
+    groups: dict[Any, list[int]] = {}
+    keys = list(zip(*[frame[c].tolist() for c in id_cols]))
+    for i, k in enumerate(keys):
+        groups.setdefault(k, []).append(i)
+    for tr in transforms:
+        fn = REFERENCES.get(tr.type_name)
+        if fn is None:
+            raise NotImplementedError(f"no reference implementation for {tr.type_name!r}")
+        outs: list[list[Any]] = [[None] * len(frame) for _ in tr.outputs()]
+        for positions in groups.values():
+            rows = work.iloc[positions]
+            times = [Subject(rows, [], unit).native(v) for v in rows[time].tolist()]
+            order = sorted(range(len(positions)), key=lambda j: times[j])
+            subj = Subject(rows.iloc[order], [times[j] for j in order], unit)
+            results = fn(tr, subj)
+            for out, res in zip(outs, results):
+                for j, v in zip(order, res):
+                    out[positions[j]] = v
+        for name, values in zip(tr.outputs(), outs):
+            cleaned = [math.nan if is_missing(v) else v for v in values]
+            if all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in cleaned):
+                work[name] = pd.Series(cleaned, index=frame.index, dtype="float64")
+            else:
+                work[name] = pd.Series(cleaned, index=frame.index, dtype=object)
+    return work
