@@ -88,9 +88,26 @@ class Subject:
         return pd.Timedelta(value).value
 
 
+_loaded = False
+
+
 def _load_all() -> None:
-    for mod in pkgutil.iter_modules(__path__):
+    """Import every reference module beside this one (each registers its functions)."""
+    global _loaded
+    if _loaded:
+        return
+    for mod in sorted(pkgutil.iter_modules(__path__), key=lambda m: m.name):
         importlib.import_module(f"{__name__}.{mod.name}")
+    _loaded = True
+
+
+def missing_references() -> list[str]:
+    """Registered transform types (``panelfx._transform.REGISTRY``) that have no reference."""
+    import panelfx  # noqa: F401  (importing the package registers every transform)
+    from ..._transform import REGISTRY
+
+    _load_all()
+    return sorted(set(REGISTRY) - set(REFERENCES))
 
 
 def reference(
@@ -105,8 +122,7 @@ def reference(
     Outputs come back as float64 where every value is a number (or missing), else as
     object columns; compare with :func:`panelfx.testing.assert_matches_reference`.
     """
-    if not REFERENCES:
-        _load_all()
+    _load_all()
     id_cols = [id] if isinstance(id, str) else list(id)
     work = frame.copy()
     is_dt = not pd.api.types.is_numeric_dtype(frame[time].dtype) or pd.api.types.is_bool_dtype(frame[time].dtype)
