@@ -267,7 +267,7 @@ def assert_past_only(
     >>> assert_past_only(df, px.lag("y", -1), id="pid", time="day")
     Traceback (most recent call last):
     ...
-    AssertionError: transform #1 (lag) declares that it uses later occasions (past_only is False): Lag(col='y', periods=-1, name=None)
+    AssertionError: transform #1 (lag) declares that it uses later occasions (past_only is False): Lag(col='y', periods=-1, ...)
     """
     __tracebackhide__ = True
     for i, tr in enumerate(transforms):
