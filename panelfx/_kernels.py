@@ -113,3 +113,32 @@ def subject_reduce(p: Panel, ufunc: np.ufunc, values: np.ndarray) -> np.ndarray:
     if p.n == 0:
         return values
     return ufunc.reduceat(values, p.starts)[p.grp]
+
+
+class Runs:
+    """Stretches of consecutive rows inside subjects, e.g. exposure restarted after a long gap.
+
+    Carries the same boundary attributes as the Panel (``n``, ``starts``, ``ends``,
+    ``grp``, ``pos``, ``size``), so :func:`cumsum`, :func:`first_index`,
+    :func:`last_index_upto`, :func:`shift_index` and :func:`subject_reduce` work per run
+    when given one in place of the panel.
+    """
+
+    def __init__(self, p: Panel, breaks: np.ndarray) -> None:
+        is_start = (p.pos == 0) | breaks
+        self.n = p.n
+        self.starts = np.flatnonzero(is_start)
+        self.ends = np.append(self.starts[1:], p.n).astype(self.starts.dtype)
+        self.grp = np.cumsum(is_start) - 1
+        self.pos = np.arange(p.n) - self.starts[self.grp] if p.n else np.zeros(0, dtype=np.int64)
+        self.size = (self.ends - self.starts)[self.grp]
+
+
+def running_count(p: Panel, mask: np.ndarray) -> np.ndarray:
+    """Per row: how many rows at or before it, in the same subject, satisfy ``mask`` (int64, exact)."""
+    if p.n == 0:
+        return np.zeros(0, dtype=np.int64)
+    m = mask.astype(np.int64)
+    c = np.cumsum(m)
+    before = c[p.starts] - m[p.starts]
+    return c - before[p.grp]
