@@ -1,13 +1,17 @@
-"""Lag: the value a given number of occasions earlier (or later) within the subject."""
+"""Lag: the value a given number of occasions earlier (or later), or a time offset earlier, within the subject."""
 
 from __future__ import annotations
 
 import dataclasses
 from typing import Any, Sequence
 
+import numpy as np
+
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_int, check_name
+from ..errors import OptionError
+from ._spans import check_span, span_label, span_words
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -16,13 +20,26 @@ class Lag(Transform):
 
     type_name = "lag"
     col: str
-    periods: int = 1
+    periods: int | None = None  # None: 1 occasion unless offset= is given
+    offset: str | float | None = None
+    tolerance: str | float | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
         check_name(self.name)
-        check_int("periods", self.periods, nonzero=True)
+        if self.offset is None:
+            if self.tolerance is not None:
+                raise OptionError("tolerance= applies only to a lag by time (offset=), not to periods=")
+            periods = 1 if self.periods is None else self.periods
+            check_int("periods", periods, nonzero=True)
+            object.__setattr__(self, "periods", periods)
+            return
+        if self.periods is not None:
+            raise OptionError("give either periods= (occasions) or offset= (time), not both")
+        object.__setattr__(self, "offset", check_span("offset", self.offset))
+        if self.tolerance is not None:
+            object.__setattr__(self, "tolerance", check_span("tolerance", self.tolerance, allow_zero=True))
 
     def inputs(self) -> tuple[str, ...]:
         return (self.col,)
@@ -30,33 +47,64 @@ class Lag(Transform):
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
+        if self.offset is not None:
+            return (f"{self.col}_lag_{span_label(self.offset)}",)
         word = "lag" if self.periods > 0 else "lead"
         return (f"{self.col}_{word}{abs(self.periods)}",)
 
     @property
     def past_only(self) -> bool:
-        return self.periods > 0
+        return self.offset is not None or self.periods > 0
 
     def describe(self) -> str:
+        if self.offset is not None:
+            words = (f"value of {self.col!r} at the subject's latest occasion at or before "
+                     f"{span_words(self.offset)} earlier")
+            if self.tolerance is not None:
+                words += f", if that occasion is at most {span_words(self.tolerance)} older than the target time"
+            return words
         if self.periods > 0:
             return f"value of {self.col!r} {self.periods} occasion(s) earlier in the subject"
         return f"value of {self.col!r} {-self.periods} occasion(s) later in the subject (uses the future)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.gather(self.col, K.shift_index(panel, self.periods))]
+        if self.offset is None:
+            return [panel.gather(self.col, K.shift_index(panel, self.periods))]
+        target = panel.t - panel.span(self.offset, "offset")
+        src = K.bisect(panel, target, side="right") - 1  # last occasion at or before the target
+        ok = src >= panel.starts[panel.grp]
+        if self.tolerance is not None:
+            ok &= panel.t[np.maximum(src, 0)] >= target - panel.span(self.tolerance, "tolerance")
+        return [panel.gather(self.col, np.where(ok, src, -1))]
 
 
-def lag(col: str, periods: int = 1, *, name: str | None = None) -> Lag:
-    """The value of ``col`` ``periods`` occasions earlier within the subject.
+def lag(
+    col: str,
+    periods: int | None = None,
+    *,
+    offset: str | float | None = None,
+    tolerance: str | float | None = None,
+    name: str | None = None,
+) -> Lag:
+    """The value of ``col`` ``periods`` occasions earlier, or ``offset`` time earlier, within the subject.
 
-    Negative ``periods`` look ahead (a lead); that uses the future and is not past-only.
-    Occasions are rows of the subject in time order, however far apart in time.
+    By occasions (``periods``, default 1 when ``offset`` is not given): occasions are rows
+    of the subject in time order, however far apart in time.  Negative ``periods`` look
+    ahead (a lead); that uses the future and is not past-only.
+
+    By time (``offset``, a positive number for numeric times or a span such as ``"30D"``
+    for datetimes; exclusive with ``periods``): the value at the subject's latest
+    occasion at or before t - offset, the value "as of" that time.  ``tolerance`` (same
+    kind of span, may be 0) drops sources that are too old: the source occasion must lie
+    at or after t - offset - tolerance.  Without it any earlier occasion qualifies.
 
     Missing values: missing where the source occasion does not exist (the subject's first
     ``periods`` rows) and where the source value itself is missing.  Works on any dtype
     (numbers, text, categories) and keeps it; integers become float64 only where a value
-    is missing.  Past-only for positive ``periods``.  Default name: ``<col>_lag<k>`` or
-    ``<col>_lead<k>``.
+    is missing.  By time: missing where no occasion qualifies and where the qualifying
+    occasion's value is missing (earlier values are not searched).  Past-only for positive
+    ``periods`` and for ``offset``.  Default name: ``<col>_lag<k>`` or ``<col>_lead<k>``;
+    ``<col>_lag_<offset>`` by time (``hb_lag_30D``, ``hb_lag_7``).
 
     >>> import pandas as pd, panelfx as px
     >>> df = pd.DataFrame({"pid": ["a", "a", "a", "b"], "wk": [1, 2, 3, 1],
@@ -67,5 +115,17 @@ def lag(col: str, periods: int = 1, *, name: str | None = None) -> Lag:
     1   a   2    20       10.0        20.0
     2   a   3    20       20.0         NaN
     3   b   1     5        NaN         NaN
+
+    By time: the dose as of one week earlier, from a source at most 3 days older than that.
+
+    >>> df = pd.DataFrame({"pid": ["a"] * 5, "day": [0, 5, 8, 16, 30], "dose": [10, 20, 30, 40, 50]})
+    >>> px.derive(df, px.lag("dose", offset=7), px.lag("dose", offset=7, tolerance=3, name="dose_wk"),
+    ...           id="pid", time="day")
+      pid  day  dose  dose_lag_7  dose_wk
+    0   a    0    10         NaN      NaN
+    1   a    5    20         NaN      NaN
+    2   a    8    30        10.0     10.0
+    3   a   16    40        30.0     30.0
+    4   a   30    50        40.0      NaN
     """
-    return Lag(col=col, periods=periods, name=name)
+    return Lag(col=col, periods=periods, offset=offset, tolerance=tolerance, name=name)

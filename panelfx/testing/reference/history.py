@@ -1,4 +1,4 @@
-"""References: baseline, change from baseline, change from previous, lag (by occasions)."""
+"""References: baseline, change from baseline, change from previous, lag (by occasions or by time offset)."""
 
 from __future__ import annotations
 
@@ -86,7 +86,19 @@ def change_from_previous(tr: Any, s: Subject) -> list[list[Any]]:
 def lag(tr: Any, s: Subject) -> list[list[Any]]:
     raw = s.raw(tr.col)
     if getattr(tr, "offset", None) is not None:
-        raise NotImplementedError("lag by time offset: see the time-lag reference")
+        # as of t - offset: the latest occasion at or before that time, not older than the tolerance
+        off = s.span(tr.offset)
+        out = []
+        for i in range(len(raw)):
+            target = s.times[i] - off
+            found = None
+            for j in range(len(raw)):
+                if s.times[j] <= target:
+                    found = j
+            if found is not None and tr.tolerance is not None and s.times[found] < target - s.span(tr.tolerance):
+                found = None
+            out.append(None if found is None else raw[found])
+        return [out]
     k = tr.periods
     return [[raw[i - k] if 0 <= i - k < len(raw) else None for i in range(len(raw))]]
 
