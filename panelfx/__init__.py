@@ -31,6 +31,16 @@ from .transforms.baseline import baseline
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
 from .transforms.lag import lag
+from .transforms.carry_forward import carry_forward
+from .transforms.cumulative import cumulative
+from .transforms.events_so_far import events_so_far
+from .transforms.ever import ever
+from .transforms.gap import gap
+from .transforms.occasion import occasion
+from .transforms.time_since import time_since
+from .transforms.time_since_baseline import time_since_baseline
+from .transforms.within_between import within_between
+from .summary import subject_summary
 
 __version__ = "0.1.0"
 
@@ -43,6 +53,16 @@ __all__ = [
     "change_from_baseline",
     "change_from_previous",
     "lag",
+    "cumulative",
+    "time_since",
+    "events_so_far",
+    "ever",
+    "carry_forward",
+    "within_between",
+    "time_since_baseline",
+    "occasion",
+    "gap",
+    "subject_summary",
     # errors
     "PanelError",
     "MissingColumnError",

@@ -1,0 +1,92 @@
+"""Carry forward: the last non-missing value, carried to later occasions within limits."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+import numpy as np
+
+from .. import _kernels as K
+from .._panel import Panel
+from .._transform import Transform, check_column_name, check_int, check_name
+from ._spans import check_span, span_words
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class CarryForward(Transform):
+    """Configured :func:`carry_forward`."""
+
+    type_name = "carry_forward"
+    col: str
+    limit: int | None = None
+    max_span: str | float | None = None
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_column_name("col", self.col)
+        check_name(self.name)
+        if self.limit is not None:
+            check_int("limit", self.limit, minimum=1)
+        if self.max_span is not None:
+            object.__setattr__(self, "max_span", check_span("max_span", self.max_span))
+
+    def inputs(self) -> tuple[str, ...]:
+        return (self.col,)
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or f"{self.col}_filled",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        words = f"{self.col!r}, a missing value replaced by the subject's last earlier non-missing value"
+        if self.limit is not None:
+            words += f", carried at most {self.limit} occasion(s)"
+        if self.max_span is not None:
+            words += f", carried at most {span_words(self.max_span)}"
+        return words
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        src = K.last_index_upto(panel, ~panel.missing(self.col))
+        ok = src >= 0
+        if self.limit is not None:
+            ok &= np.arange(panel.n) - src <= self.limit
+        if self.max_span is not None:
+            ok &= panel.t - panel.t[np.maximum(src, 0)] <= panel.span(self.max_span, "max_span")
+        return [panel.gather(self.col, np.where(ok, src, -1))]
+
+
+def carry_forward(
+    col: str,
+    *,
+    limit: int | None = None,
+    max_span: str | float | None = None,
+    name: str | None = None,
+) -> CarryForward:
+    """``col`` with each missing value replaced by the subject's last earlier non-missing value.
+
+    ``limit`` (an integer >= 1) carries a value to at most that many later occasions;
+    ``max_span`` (a positive number for numeric times, a span such as ``"90D"`` for
+    datetimes) carries it only while the time since its own occasion is at most that
+    long.  Given both, both must hold.  Non-missing values are kept as they are.
+
+    Missing values: missing before the subject's first non-missing value and beyond the
+    limits.  Never carried from one subject to the next.  Works on any dtype (numbers,
+    text, categories) and keeps it.  Past-only.  Default name: ``<col>_filled``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 30, 60, 200, 0],
+    ...                    "bmi": [None, 27.1, None, None, 31.0]})
+    >>> px.derive(df, px.carry_forward("bmi"), px.carry_forward("bmi", max_span=90, name="bmi_90"),
+    ...           id="pid", time="day")
+       pid  day   bmi  bmi_filled  bmi_90
+    0    1    0   NaN         NaN     NaN
+    1    1   30  27.1        27.1    27.1
+    2    1   60   NaN        27.1    27.1
+    3    1  200   NaN        27.1     NaN
+    4    2    0  31.0        31.0    31.0
+    """
+    return CarryForward(col=col, limit=limit, max_span=max_span, name=name)

@@ -1,0 +1,71 @@
+"""Events so far: the running count of occasions at which a flag is true."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+from .. import _kernels as K
+from .._panel import Panel
+from .._transform import Transform, check_column_name, check_name
+from .time_since import check_bool
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class EventsSoFar(Transform):
+    """Configured :func:`events_so_far`."""
+
+    type_name = "events_so_far"
+    col: str
+    include_current: bool = True
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_column_name("col", self.col)
+        check_name(self.name)
+        check_bool("include_current", self.include_current)
+
+    def inputs(self) -> tuple[str, ...]:
+        return (self.col,)
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or f"{self.col}_count",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        when = "at or before" if self.include_current else "strictly before"
+        return (f"number of the subject's occasions {when} the current one at which {self.col!r} is true "
+                f"(a missing flag is not an event)")
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        event, _ = panel.flags(self.col)
+        count = K.running_count(panel, event)
+        if not self.include_current:
+            count = count - event
+        return [panel.unsort(count)]
+
+
+def events_so_far(col: str, *, include_current: bool = True, name: str | None = None) -> EventsSoFar:
+    """How many of the subject's occasions up to the current one have ``col`` true.
+
+    ``col`` is a true/false column (booleans, or numbers where 0 is false and any other
+    number true).  ``include_current=False`` counts only strictly earlier occasions
+    ("number of prior events").  Missing values: a missing flag is not an event, so the
+    count is never missing.  Past-only.  Output int64.  Default name: ``<col>_count``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "wk": [1, 2, 3, 4, 1],
+    ...                    "admitted": [1, 0, None, 1, 0]})
+    >>> px.derive(df, px.events_so_far("admitted"),
+    ...           px.events_so_far("admitted", include_current=False, name="prior"), id="pid", time="wk")
+       pid  wk  admitted  admitted_count  prior
+    0    1   1       1.0               1      0
+    1    1   2       0.0               1      1
+    2    1   3       NaN               1      1
+    3    1   4       1.0               2      1
+    4    2   1       0.0               0      0
+    """
+    return EventsSoFar(col=col, include_current=include_current, name=name)

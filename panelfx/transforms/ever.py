@@ -1,0 +1,71 @@
+"""Ever/never: whether a flag has been true at any occasion so far."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+from .. import _kernels as K
+from .._panel import Panel
+from .._transform import Transform, check_column_name, check_name
+from .time_since import check_bool
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Ever(Transform):
+    """Configured :func:`ever`."""
+
+    type_name = "ever"
+    col: str
+    include_current: bool = True
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_column_name("col", self.col)
+        check_name(self.name)
+        check_bool("include_current", self.include_current)
+
+    def inputs(self) -> tuple[str, ...]:
+        return (self.col,)
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or f"{self.col}_ever",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        when = "at or before" if self.include_current else "strictly before"
+        return (f"True once {self.col!r} has been true at an occasion {when} the current one, else False "
+                f"(a missing flag is not an event)")
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        event, _ = panel.flags(self.col)
+        count = K.running_count(panel, event)
+        if not self.include_current:
+            count = count - event
+        return [panel.unsort(count > 0)]
+
+
+def ever(col: str, *, include_current: bool = True, name: str | None = None) -> Ever:
+    """Ever/never flag: True from the subject's first occasion with ``col`` true onwards.
+
+    ``col`` is a true/false column (booleans, or numbers where 0 is false and any other
+    number true).  ``include_current=False`` looks only at strictly earlier occasions
+    ("ever before").  Missing values: a missing flag is not an event, so the result is
+    never missing (False until a known event).  Past-only.  Output bool.  Default name:
+    ``<col>_ever``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "wk": [1, 2, 3, 1, 2],
+    ...                    "smoked": [False, True, False, False, False]})
+    >>> px.derive(df, px.ever("smoked"), id="pid", time="wk")
+       pid  wk  smoked  smoked_ever
+    0    1   1   False        False
+    1    1   2    True         True
+    2    1   3   False         True
+    3    2   1   False        False
+    4    2   2   False        False
+    """
+    return Ever(col=col, include_current=include_current, name=name)

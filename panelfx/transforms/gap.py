@@ -1,0 +1,62 @@
+"""Gap: the time since the subject's previous occasion."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+import numpy as np
+
+from .. import _kernels as K
+from .._panel import Panel
+from .._transform import Transform, check_name
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Gap(Transform):
+    """Configured :func:`gap`."""
+
+    type_name = "gap"
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_name(self.name)
+
+    def inputs(self) -> tuple[str, ...]:
+        return ()
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or "gap",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        return "time since the subject's previous occasion (missing on its first occasion)"
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        prev = K.shift_index(panel, 1)
+        out = panel.duration(panel.t - panel.t[np.maximum(prev, 0)])
+        out[prev < 0] = np.nan
+        return [panel.unsort(out)]
+
+
+def gap(*, name: str | None = None) -> Gap:
+    """The time since the subject's previous occasion.
+
+    Float64 in the time column's units, or in the ``unit`` of :func:`~panelfx.derive`
+    (default days) for datetimes.  Missing on the subject's first occasion.  Past-only.
+    Default name: ``gap``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 2],
+    ...                    "visit": pd.to_datetime(["2024-01-01", "2024-01-15", "2024-03-01", "2024-02-01"])})
+    >>> px.derive(df, px.gap(), id="pid", time="visit")
+       pid      visit   gap
+    0    1 2024-01-01   NaN
+    1    1 2024-01-15  14.0
+    2    1 2024-03-01  46.0
+    3    2 2024-02-01   NaN
+    """
+    return Gap(name=name)

@@ -1,0 +1,55 @@
+"""Occasion number: 1, 2, 3, ... within the subject, in time order."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+from .._panel import Panel
+from .._transform import Transform, check_name
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Occasion(Transform):
+    """Configured :func:`occasion`."""
+
+    type_name = "occasion"
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_name(self.name)
+
+    def inputs(self) -> tuple[str, ...]:
+        return ()
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or "occasion",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        return "occasion number within the subject in time order (1 = first occasion)"
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        return [panel.unsort(panel.pos + 1)]
+
+
+def occasion(*, name: str | None = None) -> Occasion:
+    """The occasion number within the subject: 1 at its first occasion, then 2, 3, ...
+
+    Counts rows in time order, whatever their spacing and whatever is missing in them
+    (the time column is never missing).  Past-only.  Output int64.  Default name:
+    ``occasion``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [2, 1, 1, 1], "day": [0, 40, 0, 15]})
+    >>> px.derive(df, px.occasion(), id="pid", time="day")
+       pid  day  occasion
+    0    2    0         1
+    1    1   40         3
+    2    1    0         1
+    3    1   15         2
+    """
+    return Occasion(name=name)

@@ -1,0 +1,107 @@
+"""Time since an event: since the first or the most recent occasion at which a flag is true."""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Sequence
+
+import numpy as np
+
+from .. import _kernels as K
+from .._panel import Panel
+from .._transform import Transform, check_choice, check_column_name, check_name
+from ..errors import OptionError
+
+WHICH = ("last", "first")
+
+
+def check_bool(name: str, value: Any) -> None:
+    if not isinstance(value, bool):
+        raise OptionError(f"{name} must be True or False, got {value!r}")
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class TimeSince(Transform):
+    """Configured :func:`time_since`."""
+
+    type_name = "time_since"
+    col: str
+    which: str = "last"
+    include_current: bool = True
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_column_name("col", self.col)
+        check_name(self.name)
+        check_choice("which", self.which, WHICH)
+        check_bool("include_current", self.include_current)
+
+    def inputs(self) -> tuple[str, ...]:
+        return (self.col,)
+
+    def outputs(self) -> tuple[str, ...]:
+        if self.name:
+            return (self.name,)
+        return (f"time_since_{self.col}" if self.which == "last" else f"time_since_first_{self.col}",)
+
+    @property
+    def past_only(self) -> bool:
+        return True
+
+    def describe(self) -> str:
+        which = "most recent" if self.which == "last" else "first"
+        when = "at or before the current occasion" if self.include_current else "strictly before the current occasion"
+        return (f"time since the {which} occasion at which {self.col!r} is true, {when}; "
+                f"missing before any such event (a missing flag is not an event)")
+
+    def compute(self, panel: Panel) -> Sequence[Any]:
+        event, _ = panel.flags(self.col)  # a missing flag counts as no event
+        rows = np.arange(panel.n)
+        if self.which == "last":
+            src = K.last_index_upto(panel, event)
+            if not self.include_current:
+                prev = K.shift_index(panel, 1)
+                src = np.where(prev >= 0, src[np.maximum(prev, 0)], -1)
+        else:
+            src = K.first_index(panel, event)
+            after = src <= rows if self.include_current else src < rows
+            src = np.where((src >= 0) & after, src, -1)
+        out = panel.duration(panel.t - panel.t[np.maximum(src, 0)])
+        out[src < 0] = np.nan
+        return [panel.unsort(out)]
+
+
+def time_since(
+    col: str,
+    which: str = "last",
+    *,
+    include_current: bool = True,
+    name: str | None = None,
+) -> TimeSince:
+    """Time since the subject's most recent (``which="last"``) or first (``"first"``)
+    occasion at which ``col`` is true, at or before the current occasion.
+
+    ``col`` is a true/false column: booleans, or numbers where 0 is false and any other
+    number true.  ``include_current=False`` counts only strictly earlier events, so an
+    event occasion reports the time since the event before it (the usual "time since
+    previous event" feature).  Durations are float64 in the time column's units, or in
+    the ``unit`` of :func:`~panelfx.derive` (default days) for datetimes; 0 on an event
+    occasion when the current one counts.
+
+    Missing values: a missing flag is not an event; the result is missing before the
+    subject's first (counted) event.  Past-only.  Default names: ``time_since_<col>``,
+    ``time_since_first_<col>``.
+
+    >>> import pandas as pd, panelfx as px
+    >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 3, 10, 12, 0],
+    ...                    "fall": [False, True, False, True, True]})
+    >>> px.derive(df, px.time_since("fall"), px.time_since("fall", "first"),
+    ...           px.time_since("fall", include_current=False, name="since_prior"), id="pid", time="day")
+       pid  day   fall  time_since_fall  time_since_first_fall  since_prior
+    0    1    0  False              NaN                    NaN          NaN
+    1    1    3   True              0.0                    0.0          NaN
+    2    1   10  False              7.0                    7.0          7.0
+    3    1   12   True              0.0                    9.0          9.0
+    4    2    0   True              0.0                    0.0          NaN
+    """
+    return TimeSince(col=col, which=which, include_current=include_current, name=name)
