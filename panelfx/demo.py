@@ -211,12 +211,14 @@ def history_transforms() -> list:
         px.change_from_previous("sbp"),
         px.lag("dose_mg"),
     ]
-    if hasattr(px, "cumulative"):
-        ts.append(px.cumulative("dose_mg"))
+    if hasattr(px, "cumulative"):  # daily dose held until the next visit: mg taken so far
+        ts.append(px.cumulative("dose_mg", "step", name="dose_total_mg"))
     if hasattr(px, "time_since"):
         ts.append(px.time_since("dizzy"))
     if hasattr(px, "rolling"):
         ts.append(px.rolling("sbp", "90D"))
+    if hasattr(px, "within_between"):
+        ts.append(px.within_between("dose_mg"))
     return ts
 
 
@@ -258,7 +260,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     out = px.derive(df, *transforms, id=ID, time=TIME)
     print(f"{len(out.columns) - len(df.columns)} columns added; the first rows, sorted for reading:")
     if args.rows > 0:
-        shown = out.sort_values([*ID, TIME], kind="stable").head(args.rows)
+        # the inputs that matter for the derived columns, then the derived columns
+        cols = [*ID, TIME, "treat_start", "sbp", "dose_mg", "dizzy", *out.columns[len(df.columns):]]
+        shown = out.sort_values([*ID, TIME], kind="stable").head(args.rows)[cols]
         with pd.option_context("display.width", 250, "display.max_columns", 50):
             print(shown.to_string())
 
