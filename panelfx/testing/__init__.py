@@ -105,8 +105,9 @@ def assert_matches_reference(
 def __getattr__(name: str) -> Any:
     # The strategies need hypothesis, an optional dependency: import them only on use.
     if name in ("panels", "PanelCase", "strategies"):
-        from . import strategies
+        import importlib
 
+        strategies = importlib.import_module(f"{__name__}.strategies")
         return strategies if name == "strategies" else getattr(strategies, name)
     raise AttributeError(f"module 'panelfx.testing' has no attribute {name!r}")
 

@@ -1,0 +1,131 @@
+"""Example configurations of every transform type, for the cross-cutting tests.
+
+Each registered transform type (``panelfx._transform.REGISTRY``) needs at least one
+entry here and a reference in ``panelfx.testing.reference``; ``test_all_transforms``
+fails otherwise, so a new transform cannot skip the shared checks (reference property
+test, past-only check, invariants, input left unchanged, saved-options round trip).
+
+Entries use the columns of ``panelfx.testing.strategies.panels()``: ``y`` (float with
+missing values), ``x`` (int), ``flag`` (bool), ``dose`` (non-negative float).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any, Callable
+
+import pandas as pd
+
+import panelfx as px
+from panelfx._transform import Transform
+from panelfx.testing.strategies import PanelCase, TIME_KINDS
+
+NUMERIC_TIMES = ("int", "float")
+
+
+def add_reference_time(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
+    """A column ``ref_t``, constant within subject: the subject's first time + 10 units
+    (10 days for datetimes, 10 hours for timedeltas)."""
+    first = frame.groupby(case.id, sort=False, observed=True)[case.time].transform("min")
+    t = frame[case.time]
+    if pd.api.types.is_datetime64_any_dtype(t.dtype) or pd.api.types.is_timedelta64_dtype(t.dtype) \
+            or isinstance(t.dtype, pd.ArrowDtype) and not pd.api.types.is_numeric_dtype(t.dtype):
+        step: Any = pd.Timedelta(10, unit="D") if not pd.api.types.is_timedelta64_dtype(t.dtype) \
+            else pd.Timedelta(10, unit="h")
+    else:
+        step = 10
+    return frame.assign(ref_t=first + step)
+
+
+def numeric_time(case: PanelCase) -> bool:
+    t = case.frame[case.time]
+    return pd.api.types.is_numeric_dtype(t.dtype) and not pd.api.types.is_bool_dtype(t.dtype)
+
+
+@dataclasses.dataclass(frozen=True)
+class Entry:
+    """One example configuration.
+
+    ``build`` makes the transform given whether the panel's time is numeric (spans are
+    numbers then, strings such as "7D" otherwise).  ``time_kinds`` limits the panels it is
+    tried on; ``prepare`` adds any extra column it needs.  ``constant`` /
+    ``non_decreasing`` list the positions of outputs that must be constant within subject
+    / non-decreasing in time order.
+    """
+
+    label: str
+    build: Callable[[bool], Transform]
+    time_kinds: tuple[str, ...] = TIME_KINDS
+    prepare: Callable[[pd.DataFrame, PanelCase], pd.DataFrame] | None = None
+    rtol: float = 1e-9
+    constant: tuple[int, ...] = ()
+    non_decreasing: tuple[int, ...] = ()
+
+    def make(self, case: PanelCase) -> Transform:
+        return self.build(numeric_time(case))
+
+    def frame(self, case: PanelCase) -> pd.DataFrame:
+        return case.frame if self.prepare is None else self.prepare(case.frame, case)
+
+    def example(self) -> Transform:
+        """The transform for numeric times (for tests that need no panel)."""
+        return self.build(True)
+
+
+def fixed(tr: Transform, **kw: Any) -> Entry:
+    """An entry that does not depend on the time kind."""
+    return Entry(label=repr(tr), build=lambda numeric: tr, **kw)
+
+
+def spans(label: str, make: Callable[[Any], Transform], number: float, text: str, **kw: Any) -> Entry:
+    """An entry whose option is a span: ``number`` for numeric times, ``text`` (e.g. "7D") otherwise."""
+    return Entry(label=label, build=lambda numeric: make(number if numeric else text), **kw)
+
+
+def _have(*names: str) -> bool:
+    return all(hasattr(px, n) for n in names)
+
+
+def _build() -> dict[str, list[Entry]]:
+    cat: dict[str, list[Entry]] = {}
+    cat["baseline"] = [
+        fixed(px.baseline("y"), constant=(0,)),
+        fixed(px.baseline("y", "first"), constant=(0,)),
+        fixed(px.baseline("x", "first_valid"), constant=(0,)),
+        fixed(px.baseline("flag"), constant=(0,)),
+        fixed(px.baseline("y", "last_before", reference=10), time_kinds=NUMERIC_TIMES, constant=(0,)),
+        fixed(px.baseline("y", "last_before", reference="ref_t"), prepare=add_reference_time, constant=(0,)),
+    ]
+    cat["change_from_baseline"] = [
+        fixed(px.change_from_baseline("y")),
+        fixed(px.change_from_baseline("y", "percent", after_baseline_only=True)),
+        fixed(px.change_from_baseline("y", "ratio", rule="first")),
+        fixed(px.change_from_baseline("x", "difference")),
+        fixed(px.change_from_baseline("y", rule="last_before", reference="ref_t", after_baseline_only=True),
+              prepare=add_reference_time),
+    ]
+    cat["change_from_previous"] = [
+        fixed(px.change_from_previous("y")),
+        fixed(px.change_from_previous("y", "percent")),
+        fixed(px.change_from_previous("y", "rate", skip_missing=True)),
+        fixed(px.change_from_previous("y", "difference", skip_missing=True)),
+        fixed(px.change_from_previous("dose", "rate")),
+    ]
+    cat["lag"] = [
+        fixed(px.lag("y")),
+        fixed(px.lag("y", 2)),
+        fixed(px.lag("x", -1)),
+        fixed(px.lag("flag", 1)),
+    ]
+    return cat
+
+
+#: type_name -> example entries.
+CATALOGUE: dict[str, list[Entry]] = _build()
+
+#: Every entry with its type name and a readable id, for parametrize.
+ENTRIES: list[tuple[str, Entry]] = [(t, e) for t, es in CATALOGUE.items() for e in es]
+
+
+def entry_id(item: tuple[str, Entry]) -> str:
+    return item[1].label
