@@ -402,7 +402,8 @@ def to_float(s: pd.Series, panel: Panel | None = None) -> np.ndarray:
         )
     bad = s.notna().to_numpy()
     if dtype == object:
-        bad &= ~pd.to_numeric(s, errors="coerce").notna().to_numpy() | s.str.len().notna().to_numpy()
+        # not in place: under copy-on-write to_numpy() may hand back a read-only view
+        bad = bad & (~pd.to_numeric(s, errors="coerce").notna().to_numpy() | s.str.len().notna().to_numpy())
     where = np.flatnonzero(bad)
     ids = panel.ids_at(where, sorted_=False) if panel is not None else list(s.index[where[:5]])
     raise ColumnTypeError(
