@@ -371,3 +371,37 @@ def test_panels_options(case):
     assert Panel(case.frame, **case.keys).order is None
     assert case.frame["y"].notna().all()
     assert len(case.frame) == 2 * case.frame.groupby(case.id, observed=True).ngroups
+
+
+# --------------------------------------------------------------------------- README section
+def _readme_section() -> str:
+    from pathlib import Path
+
+    text = (Path(__file__).parent.parent / "README.md").read_text()
+    start = text.index("## Testing your derived variables")
+    return text[start:text.index("\n## ", start + 1)]
+
+
+def test_readme_example_test_file_passes(tmp_path):
+    """The copyable test file in the README runs green under pytest."""
+    section = _readme_section()
+    code = section.split("```python\n")[1].split("```")[0]
+    (tmp_path / "test_derived_variables.py").write_text(code)
+    run = subprocess.run([sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", "-p", "no:randomly",
+                          "-W", "error", str(tmp_path / "test_derived_variables.py")],
+                         capture_output=True, text=True, cwd=tmp_path)
+    assert run.returncode == 0, run.stdout + run.stderr
+    assert "4 passed" in run.stdout
+
+
+def test_readme_failure_message_is_real():
+    """The failure shown in the README is what the assertion prints."""
+    section = _readme_section()
+    shown = section.split("```text\n")[1].split("```")[0].strip()
+    visits = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 61, 0, 29],
+                           "sbp": [152.0, 147.0, None, 139.0, 141.0], "dose_mg": [0.0, 50.0, 50.0, 0.0, 25.0]})
+    out = px.derive(visits, px.cumulative("dose_mg"), id="pid", time="day")
+    out.loc[4, "dose_mg_cum"] = -5.0
+    with pytest.raises(AssertionError) as ei:
+        assert_non_decreasing_within(out, "dose_mg_cum", id="pid", time="day")
+    assert "AssertionError: " + str(ei.value) == shown
