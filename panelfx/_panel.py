@@ -109,6 +109,91 @@ def time_to_native(series: pd.Series, kind: str) -> np.ndarray:
 
 NAT = np.iinfo("int64").min
 
+#: Steps tried, coarsest first, for times that are whole multiples of a unit: days, hours,
+#: minutes, seconds, ms, us, ns for native int64 nanoseconds; 1, 1/10, ... for numbers.
+_NS_STEPS = (86_400 * 10**9, 3_600 * 10**9, 60 * 10**9, 10**9, 10**6, 10**3, 1)
+_DECIMAL_SCALES = (1, 10, 100, 1000, 10_000, 100_000, 1_000_000)
+
+
+def time_ranks(t: np.ndarray) -> tuple[np.ndarray, int] | None:
+    """Times as small non-negative integers in the same order (equal exactly when the times
+    are equal) and their bound, or ``None`` when no such whole-step form is found.
+
+    Integer days, whole seconds or decimals with a few digits all qualify; the sort then
+    needs one integer key instead of two.
+    """
+    if t.dtype.kind == "f":
+        if not np.isfinite(t).all():
+            return None
+        tmin, tmax = float(t.min()), float(t.max())
+        probe = t[:4096]
+        for s in _DECIMAL_SCALES:
+            if (tmax - tmin) * s >= 2**53:
+                return None
+            # rint(t * s) is monotone in t; q / s == t proves the map is one to one.
+            if not (np.rint(probe * s) / s == probe).all():
+                continue
+            q = np.rint(t * s)
+            if (q / s == t).all():
+                q -= np.rint(tmin * s)
+                return q.astype(np.int64), int(q.max()) + 1
+        return None
+    tmin, tmax = int(t.min()), int(t.max())
+    if tmax - tmin >= 2**63:
+        return None
+    d = t - tmin
+    probe = d[:4096]
+    for u in _NS_STEPS:
+        if (probe % u == 0).all() and (d % u == 0).all():
+            if u > 1:
+                d //= u
+            return d, (tmax - tmin) // u + 1
+    return d, tmax - tmin + 1  # pragma: no cover - u = 1 always divides
+
+
+def dense_ranks(t: np.ndarray) -> tuple[np.ndarray, int]:
+    """0, 1, 2, ... for the distinct times in increasing order (one argsort)."""
+    by_time = np.argsort(t)
+    st = t[by_time]
+    new = np.empty(len(t), dtype=bool)
+    new[:1] = True
+    np.not_equal(st[1:], st[:-1], out=new[1:])
+    del st
+    ranks = np.empty(len(t), dtype=np.int64)
+    ranks[by_time] = np.cumsum(new) - 1
+    return ranks, int(ranks.max()) + 1 if len(t) else 1
+
+
+def sort_order(codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Stable order of rows by (subject code, time), and the codes in that order when the
+    packed sort made them.
+
+    Subject code, time rank and row number are packed into one int64 and sorted in place
+    with ``np.sort`` (about five times faster than ``np.lexsort`` on two keys; the row
+    number in the low bits keeps ties in their original order).  Times that are whole
+    steps rank for free; others take one argsort for their ranks.  ``np.lexsort`` only
+    when the three do not fit in 63 bits (billions of rows).
+    """
+    n = len(codes)
+    code_bits = int(codes.max()).bit_length()
+    row_bits = (n - 1).bit_length()
+    ranks = time_ranks(t)
+    if ranks is None or code_bits + max(ranks[1] - 1, 1).bit_length() + row_bits > 63:
+        ranks = dense_ranks(t)
+    q, bound = ranks
+    time_bits = max(bound - 1, 1).bit_length()
+    if code_bits + time_bits + row_bits > 63:  # pragma: no cover - needs billions of rows
+        return np.lexsort((t, codes)), None
+    key = codes << time_bits
+    key |= q
+    del q, ranks
+    key <<= row_bits
+    key |= np.arange(n)
+    key.sort()
+    order = key & ((1 << row_bits) - 1)
+    key >>= time_bits + row_bits
+    return order, key
+
 
 class Panel:
     """Rows of a frame in (subject, time) order, with subject boundaries.
@@ -151,9 +236,9 @@ class Panel:
         codes = self._subject_codes()
         t = time_to_native(frame[time], self.time_kind)
         self._check_null_time(t, codes)
-        self.order = self._ordering(codes, t)
+        self.order, sorted_codes = self._ordering(codes, t)
         if self.order is not None:
-            codes = codes[self.order]
+            codes = codes[self.order] if sorted_codes is None else sorted_codes
             t = t[self.order]
         self.t = t
         is_start = np.empty(self.n, dtype=bool)
@@ -220,16 +305,20 @@ class Panel:
                 ids=self.ids_at(np.flatnonzero(null), sorted_=False),
             )
 
-    def _ordering(self, codes: np.ndarray, t: np.ndarray) -> np.ndarray | None:
-        """``None`` when rows already come grouped by subject and in time order (O(n) check)."""
+    def _ordering(self, codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray | None, np.ndarray | None]:
+        """(order, sorted codes): order ``None`` when rows already come grouped by subject
+        and in time order (O(n) check); sorted codes ``None`` when not at hand."""
         if self.n < 2:
-            return None
-        same = codes[1:] == codes[:-1]
+            return None, None
         # First-appearance codes are non-decreasing exactly when each subject's rows are contiguous.
         # Ties in time are left in place: they are duplicates, reported by the caller.
-        if np.all(codes[1:] >= codes[:-1]) and np.all(t[1:][same] >= t[:-1][same]):
-            return None
-        return np.lexsort((t, codes))
+        step = codes[1:] - codes[:-1]
+        if not (step < 0).any():
+            same = step == 0
+            if not (t[1:][same] < t[:-1][same]).any():
+                return None, None
+        del step
+        return sort_order(codes, t)
 
     def _check_duplicates(self) -> None:
         dup = self.repeated
