@@ -40,6 +40,7 @@ from .transforms.occasion import occasion
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
+from .transforms.rolling import rolling
 from .summary import subject_summary
 
 __version__ = "0.1.0"
@@ -62,6 +63,7 @@ __all__ = [
     "time_since_baseline",
     "occasion",
     "gap",
+    "rolling",
     "subject_summary",
     # errors
     "PanelError",
