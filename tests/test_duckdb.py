@@ -12,6 +12,7 @@ checks in the rolling tests.
 from __future__ import annotations
 
 import dataclasses
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -82,8 +83,10 @@ def _duration_sql(frame: pd.DataFrame) -> str:
     return "dur_ns"
 
 
-def duckdb_values(frame: pd.DataFrame, id_: str | list[str], exprs: dict[str, str]) -> pd.DataFrame:
-    """Evaluate ``exprs`` in DuckDB over ``frame``; rows back in the frame's order and index."""
+def duckdb_values(frame: pd.DataFrame, id_: str | list[str], exprs: dict[str, str],
+                  pre: dict[str, str] | None = None) -> pd.DataFrame:
+    """Evaluate ``exprs`` in DuckDB over ``frame``; rows back in the frame's order and index.
+    ``pre`` columns are computed first, in a CTE (window functions cannot be nested)."""
     ids = ", ".join(np.atleast_1d(id_))
     data = frame.reset_index(drop=True).assign(row_no=np.arange(len(frame)))
     con = duckdb.connect()
@@ -94,7 +97,11 @@ def duckdb_values(frame: pd.DataFrame, id_: str | list[str], exprs: dict[str, st
         con.register("p", data)
         dur = _duration_sql(frame)
         cols = ", ".join(f"{e.format(ids=ids, dur=dur)} AS {name}" for name, e in exprs.items())
-        out = con.execute(f"SELECT row_no, {cols} FROM p ORDER BY row_no").df()
+        source = "p"
+        if pre:
+            first = ", ".join(f"{e.format(ids=ids, dur=dur)} AS {name}" for name, e in pre.items())
+            source = f"(SELECT *, {first} FROM p) AS q"
+        out = con.execute(f"SELECT row_no, {cols} FROM {source} ORDER BY row_no").df()
     finally:
         con.close()
     out.index = frame.index
@@ -139,3 +146,100 @@ def test_duckdb_sql_itself_on_a_worked_example():
     assert change[1:] == [0.0, 2.0, 0.0] and pd.isna(change[0])
     rate_skip = out[f"c{len(CHECKS) - 1}"].tolist()
     assert pd.isna(rate_skip[0]) and pd.isna(rate_skip[1]) and rate_skip[2] == pytest.approx(0.2)
+
+
+# Exposure, event, filling and occasion transforms.  Each pair: transform, DuckDB expression.
+STEP = "coalesce(lag(dose, 1) " + ORD + " * {dur}(t, lag(t, 1) " + ORD + "), 0)"
+TRAP = "coalesce((lag(dose, 1) " + ORD + " + dose) / 2 * {dur}(t, lag(t, 1) " + ORD + "), 0)"
+PRE = {"step_part": STEP, "trap_part": TRAP}
+MORE: list[tuple[Callable[[], px.Transform], str]] = [
+    # built lazily, so that a transform missing from panelfx only drops its own check
+    (lambda: px.cumulative("dose"), "sum(dose) " + SO_FAR),
+    # a missing value adds nothing; the running total is 0 before the first value
+    (lambda: px.cumulative("y"), "coalesce(sum(y) " + SO_FAR + ", 0)"),
+    # step integral: sum of v_{j-1} (t_j - t_{j-1}); trapezoid: sum of (v_{j-1} + v_j) / 2 (t_j - t_{j-1})
+    (lambda: px.cumulative("dose", "step"), "sum(step_part) " + SO_FAR),
+    (lambda: px.cumulative("dose", "trapezoid"), "sum(trap_part) " + SO_FAR),
+    (lambda: px.events_so_far("flag"), "count(*) FILTER (WHERE flag) " + SO_FAR),
+    (lambda: px.events_so_far("flag", include_current=False), "count(*) FILTER (WHERE flag) " + PREV),
+    (lambda: px.ever("flag"), "bool_or(flag) " + SO_FAR),
+    (lambda: px.ever("flag", include_current=False), "coalesce(bool_or(flag) " + PREV + ", false)"),
+    (lambda: px.time_since("flag"), "{dur}(t, max(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
+    (lambda: px.time_since("flag", "first"), "{dur}(t, min(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
+    (lambda: px.time_since("x", include_current=False), "{dur}(t, max(CASE WHEN x <> 0 THEN t END) " + PREV + ")"),
+    # carry forward: last_value(... IGNORE NULLS) over the rows so far (CHECK-SOURCES.md)
+    (lambda: px.carry_forward("y"), "last_value(y IGNORE NULLS) " + SO_FAR),
+    (lambda: px.occasion(), "row_number() " + ORD),
+    (lambda: px.gap(), "{dur}(t, lag(t, 1) " + ORD + ")"),
+    (lambda: px.time_since_baseline(), "{dur}(t, first_value(t) " + W + ")"),
+]
+
+
+def _more_checks() -> list[tuple[px.Transform, str]]:
+    out = []
+    for build, sql in MORE:
+        try:
+            out.append((build(), sql))
+        except AttributeError:  # not in panelfx (yet)
+            pass
+    return out
+
+
+@settings(max_examples=max(20, settings.default.max_examples))
+@given(case=panels())
+def test_exposure_event_and_occasion_transforms_match_duckdb(case):
+    """Cumulative sums and integrals, event counts and flags, time since events, carry
+    forward, occasion number, gap and time since baseline equal DuckDB window SQL."""
+    checks = _more_checks()
+    if not checks:
+        pytest.skip("none of these transforms exists yet")
+    transforms = [_named(tr, i) for i, (tr, _) in enumerate(checks)]
+    got = px.derive(case.frame, *transforms, **case.keys)
+    want = duckdb_values(case.frame, case.id, {f"c{i}": sql for i, (_, sql) in enumerate(checks)}, pre=PRE)
+    for i, (tr, _) in enumerate(checks):
+        try:
+            assert_matches_reference(got, want, [f"c{i}"], rtol=1e-9, atol=1e-9, id=case.id, time=case.time)
+        except AssertionError as err:
+            raise AssertionError(f"{tr!r} against DuckDB: {err}") from None
+
+
+@given(case=panels())
+def test_within_between_matches_duckdb(case):
+    """Subject mean over non-missing values (DuckDB avg() OVER the subject) and the deviation from it."""
+    if not hasattr(px, "within_between"):
+        pytest.skip("within_between not in panelfx yet")
+    tr = px.within_between("y", names=("b", "w"))
+    got = px.derive(case.frame, tr, **case.keys)
+    mean = "avg(y) OVER (PARTITION BY {ids})"
+    want = duckdb_values(case.frame, case.id, {"b": mean, "w": f"y - {mean}"})
+    assert_matches_reference(got, want, ["b", "w"], rtol=1e-9, atol=1e-9, id=case.id, time=case.time)
+
+
+@given(case=panels())
+def test_lag_by_time_offset_matches_duckdb_asof_join(case):
+    """Value as of t - offset (latest occasion at or before it, not older than the
+    tolerance): DuckDB ASOF LEFT JOIN of the panel with itself on the subject and time."""
+    if "offset" not in {f.name for f in dataclasses.fields(px.lag("y"))}:
+        pytest.skip("lag by time offset not in panelfx yet")
+    numeric = pd.api.types.is_numeric_dtype(case.frame["t"].dtype)
+    offset, tol = (10, 5) if numeric else ("10D", "5D")
+    trs = [px.lag("y", offset=offset, name="a"), px.lag("y", offset=offset, tolerance=tol, name="b")]
+    got = px.derive(case.frame, *trs, **case.keys)
+    ids = list(np.atleast_1d(case.id))
+    # times as numbers (days for datetimes, as instants) so that offsets are exact
+    tn = "t::DOUBLE" if numeric else "epoch_ns(t)::DOUBLE / 86400e9"
+    data = case.frame.reset_index(drop=True).assign(row_no=np.arange(len(case.frame)))
+    on = " AND ".join(f"a.{c} = b.{c}" for c in ids)
+    sql = f"""
+        WITH p AS (SELECT *, {tn} AS tn FROM data)
+        SELECT a.row_no, b.y AS a, CASE WHEN b.tn >= a.tn - 10 - 5 THEN b.y END AS b
+        FROM p AS a ASOF LEFT JOIN p AS b ON {on} AND b.tn <= a.tn - 10
+        ORDER BY a.row_no"""
+    con = duckdb.connect()
+    try:
+        con.register("data", data)
+        want = con.execute(sql).df()
+    finally:
+        con.close()
+    want.index = case.frame.index
+    assert_matches_reference(got, want, ["a", "b"], id=case.id, time=case.time)
