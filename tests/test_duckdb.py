@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import panelfx as px
 from panelfx.testing import assert_matches_reference
@@ -215,14 +216,14 @@ def test_within_between_matches_duckdb(case):
     assert_matches_reference(got, want, ["b", "w"], rtol=1e-9, atol=1e-9, id=case.id, time=case.time)
 
 
-@given(case=panels())
-def test_lag_by_time_offset_matches_duckdb_asof_join(case):
+@given(case=panels(), days=st.sampled_from([1, 2, 10]), tol_days=st.sampled_from([0, 1, 5]))
+def test_lag_by_time_offset_matches_duckdb_asof_join(case, days, tol_days):
     """Value as of t - offset (latest occasion at or before it, not older than the
     tolerance): DuckDB ASOF LEFT JOIN of the panel with itself on the subject and time."""
     if "offset" not in {f.name for f in dataclasses.fields(px.lag("y"))}:
         pytest.skip("lag by time offset not in panelfx yet")
     numeric = pd.api.types.is_numeric_dtype(case.frame["t"].dtype)
-    offset, tol = (10, 5) if numeric else ("10D", "5D")
+    offset, tol = (days, tol_days) if numeric else (f"{days}D", f"{tol_days}D")
     trs = [px.lag("y", offset=offset, name="a"), px.lag("y", offset=offset, tolerance=tol, name="b")]
     got = px.derive(case.frame, *trs, **case.keys)
     ids = list(np.atleast_1d(case.id))
@@ -232,8 +233,8 @@ def test_lag_by_time_offset_matches_duckdb_asof_join(case):
     on = " AND ".join(f"a.{c} = b.{c}" for c in ids)
     sql = f"""
         WITH p AS (SELECT *, {tn} AS tn FROM data)
-        SELECT a.row_no, b.y AS a, CASE WHEN b.tn >= a.tn - 10 - 5 THEN b.y END AS b
-        FROM p AS a ASOF LEFT JOIN p AS b ON {on} AND b.tn <= a.tn - 10
+        SELECT a.row_no, b.y AS a, CASE WHEN b.tn >= a.tn - {days} - {tol_days} THEN b.y END AS b
+        FROM p AS a ASOF LEFT JOIN p AS b ON {on} AND b.tn <= a.tn - {days}
         ORDER BY a.row_no"""
     con = duckdb.connect()
     try:
