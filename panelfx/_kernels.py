@@ -128,7 +128,7 @@ class Runs:
         is_start = (p.pos == 0) | breaks
         self.n = p.n
         self.starts = np.flatnonzero(is_start)
-        self.ends = np.append(self.starts[1:], p.n).astype(self.starts.dtype)
+        self.ends = np.append(self.starts[1:], p.n)[: len(self.starts)].astype(self.starts.dtype)
         self.grp = np.cumsum(is_start) - 1
         self.pos = np.arange(p.n) - self.starts[self.grp] if p.n else np.zeros(0, dtype=np.int64)
         self.size = (self.ends - self.starts)[self.grp]

@@ -60,16 +60,17 @@ def subject_summary(
             raise OptionError(f"cols includes the id or time column {c!r}")
 
     n_sub = panel.n_subjects
+    ends = panel.ends[:n_sub]  # the panel's ends hold one entry even for an empty frame
     first_rows = panel.original_positions(panel.starts)
-    last_rows = panel.original_positions(panel.ends - 1)
+    last_rows = panel.original_positions(ends - 1)
     out: dict[str, object] = {}
     for c in panel.id_cols:
         out[c] = frame[c].iloc[first_rows].reset_index(drop=True)
-    out["n_occasions"] = (panel.ends - panel.starts).astype(np.int64)
+    out["n_occasions"] = (ends - panel.starts).astype(np.int64)
     out["first_time"] = frame[time].iloc[first_rows].reset_index(drop=True)
     out["last_time"] = frame[time].iloc[last_rows].reset_index(drop=True)
     t0 = panel.t[panel.starts]
-    out["follow_up"] = panel.duration(panel.t[panel.ends - 1] - t0)
+    out["follow_up"] = panel.duration(panel.t[ends - 1] - t0)
     # Time from the subject's first occasion keeps the slope sums on small numbers.
     x_all = panel.duration(panel.t - t0[panel.grp]) if panel.n else np.zeros(0)
     for c in columns:
@@ -99,7 +100,7 @@ def _column_stats(panel: Panel, y: np.ndarray, x_all: np.ndarray, n_sub: int) ->
     # Trapezoids between consecutive non-missing occasions of the same subject.
     same = g[1:] == g[:-1]
     area = (yv[1:] + yv[:-1]) * 0.5 * (x[1:] - x[:-1])
-    auc = np.bincount(g[1:][same], weights=area[same], minlength=n_sub)
+    auc = np.bincount(g[1:][same], weights=area[same], minlength=n_sub).astype("float64")  # int when empty
     auc[n == 0] = np.nan
     if panel.n:
         first = K.take(y, K.first_index(panel, valid)[panel.starts])

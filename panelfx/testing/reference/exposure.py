@@ -1,0 +1,39 @@
+"""Reference: cumulative exposure (running sum, step integral, trapezoid area)."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from . import Subject, register
+
+
+@register("cumulative")
+def cumulative(tr: Any, s: Subject) -> list[list[Any]]:
+    y = s.values(tr.col)
+    out: list[float] = []
+    total = 0.0
+    broken = False  # missing="propagate": a needed value was missing since the last (re)start
+    for k in range(len(y)):
+        restart = k == 0 or (tr.restart_after is not None and s.times[k] - s.times[k - 1] > s.span(tr.restart_after))
+        if restart:
+            total, broken = 0.0, False
+        if tr.method == "sum":
+            needed = [y[k]]
+            piece = y[k]
+        elif restart:
+            needed, piece = [], 0.0  # an integral starts from 0 at the (re)start
+        else:
+            width = s.duration(s.times[k], s.times[k - 1])
+            if tr.method == "step":
+                needed = [y[k - 1]]
+                piece = y[k - 1] * width
+            else:
+                needed = [y[k - 1], y[k]]
+                piece = (y[k - 1] + y[k]) / 2 * width
+        if any(math.isnan(v) for v in needed):
+            broken = True  # contributes nothing
+        else:
+            total += piece
+        out.append(math.nan if broken and tr.missing == "propagate" else total)
+    return [out]

@@ -1,0 +1,129 @@
+"""time_since(), events_so_far(), ever(): hand-computed values, the reference, bad inputs."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import panelfx as px
+from panelfx.testing import assert_matches_reference, reference
+from panelfx.testing.strategies import ALL_TIME_KINDS, VALUE_KINDS, panels
+
+NAN = math.nan
+
+
+def run(df, *trs, **kw):
+    return px.derive(df, *trs, id="pid", time="t", **kw)
+
+
+def events_frame():
+    # one subject: events at t = 2 and t = 7; the flag is missing at t = 5
+    return pd.DataFrame({"pid": 1, "t": [0, 2, 5, 7, 9],
+                         "ev": pd.array([False, True, None, True, False], dtype="boolean")})
+
+
+# ---------------------------------------------------------------------------- by hand
+def test_time_since_by_hand():
+    out = run(events_frame(),
+              px.time_since("ev"), px.time_since("ev", "first"),
+              px.time_since("ev", include_current=False, name="prior_last"),
+              px.time_since("ev", "first", include_current=False, name="prior_first"))
+    np.testing.assert_array_equal(out["time_since_ev"], [NAN, 0, 3, 0, 2])
+    np.testing.assert_array_equal(out["time_since_first_ev"], [NAN, 0, 3, 5, 7])
+    np.testing.assert_array_equal(out["prior_last"], [NAN, NAN, 3, 5, 2])
+    np.testing.assert_array_equal(out["prior_first"], [NAN, NAN, 3, 5, 7])
+    assert out["time_since_ev"].dtype == "float64"
+
+
+def test_counts_and_ever_by_hand():
+    out = run(events_frame(), px.events_so_far("ev"), px.events_so_far("ev", include_current=False, name="prior"),
+              px.ever("ev"), px.ever("ev", include_current=False, name="ever_before"))
+    assert out["ev_count"].tolist() == [0, 1, 1, 2, 2]
+    assert out["prior"].tolist() == [0, 0, 1, 1, 2]
+    assert out["ev_ever"].tolist() == [False, True, True, True, True]
+    assert out["ever_before"].tolist() == [False, False, True, True, True]
+    assert out["ev_count"].dtype == "int64" and out["ev_ever"].dtype == bool
+
+
+def test_numeric_flags_datetimes_and_unsorted_rows():
+    # numbers: 0 is no event, any other number (here 2 and -1) an event, NaN no event
+    df = pd.DataFrame({"pid": ["b", "a", "a", "a", "b"],
+                       "t": pd.to_datetime(["2024-01-03", "2024-01-08", "2024-01-01", "2024-01-02", "2024-01-01"]),
+                       "n": [0, 2, -1, np.nan, 0]}, index=[10, 11, 12, 13, 14])
+    out = run(df, px.time_since("n"), px.events_so_far("n"), px.time_since("n", "first"), unit="h")
+    np.testing.assert_array_equal(out["time_since_n"], [NAN, 0, 0, 24, NAN])
+    np.testing.assert_array_equal(out["time_since_first_n"], [NAN, 7 * 24, 0, 24, NAN])
+    assert out["n_count"].tolist() == [0, 2, 1, 1, 0]
+    assert list(out.index) == [10, 11, 12, 13, 14]
+
+
+def test_options_and_descriptions():
+    for tr in (px.time_since("ev", "first", include_current=False), px.events_so_far("ev"), px.ever("ev")):
+        assert type(tr)(**tr.options()) == tr
+        assert tr.past_only
+        assert "missing flag is not an event" in tr.describe()
+
+
+# ---------------------------------------------------------------------------- reference
+FLAGS = st.sampled_from(["flag", "x", "y", "flag_na"])
+
+
+def with_missing_flags(frame: pd.DataFrame) -> pd.DataFrame:
+    """A nullable boolean flag missing wherever y is missing, true where y > 0."""
+    y = frame["y"].to_numpy(dtype="float64", na_value=np.nan)
+    flag = pd.array(np.where(np.isnan(y), None, y > 0).tolist(), dtype="boolean")
+    return frame.assign(flag_na=flag)
+
+
+@settings(max_examples=120, deadline=None)
+@given(case=panels(time_kinds=ALL_TIME_KINDS, value_kinds=VALUE_KINDS), col_=FLAGS,
+       which=st.sampled_from(["last", "first"]), current=st.booleans(), kind=st.sampled_from(["since", "count", "ever"]))
+def test_matches_reference(case, col_, which, current, kind):
+    """Each event transform equals the per-subject loop reference, missing flags included."""
+    frame = with_missing_flags(case.frame)
+    tr = {"since": px.time_since(col_, which, include_current=current),
+          "count": px.events_so_far(col_, include_current=current),
+          "ever": px.ever(col_, include_current=current)}[kind]
+    got = px.derive(frame, tr, **case.keys)
+    want = reference(frame, tr, **case.keys)
+    assert_matches_reference(got, want, list(tr.outputs()), rtol=1e-12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(case=panels())
+def test_consistency_between_the_three(case):
+    """ever == (count > 0), time since the last event is missing exactly where ever is False,
+    and it never exceeds the time since the first event."""
+    out = px.derive(case.frame, px.events_so_far("flag"), px.ever("flag"), px.time_since("flag"),
+                    px.time_since("flag", "first"), **case.keys)
+    assert (out["flag_ever"] == (out["flag_count"] > 0)).all()
+    assert (out["time_since_flag"].isna() == ~out["flag_ever"]).all()
+    both = out["time_since_flag"].notna()
+    assert (out.loc[both, "time_since_flag"] <= out.loc[both, "time_since_first_flag"]).all()
+
+
+# ---------------------------------------------------------------------------- errors
+@pytest.mark.parametrize("make, words", [
+    (lambda: px.time_since("ev", "latest"), "which must be one of"),
+    (lambda: px.time_since("ev", include_current="yes"), "include_current must be True or False"),
+    (lambda: px.events_so_far("ev", include_current=1), "include_current must be True or False"),
+    (lambda: px.ever("ev", include_current=None), "include_current must be True or False"),
+    (lambda: px.time_since(3), "col must be a column name"),
+    (lambda: px.ever("ev", name=5), "name must be a column name"),
+])
+def test_bad_options(make, words):
+    with pytest.raises(px.OptionError, match=words):
+        make()
+
+
+@pytest.mark.parametrize("tr", [px.time_since("txt"), px.events_so_far("txt"), px.ever("txt"),
+                                px.time_since("when")])
+def test_wrong_dtype(tr):
+    df = events_frame().assign(txt=list("yynny"), when=pd.Timestamp("2024-01-01"))
+    with pytest.raises(px.ColumnTypeError):
+        run(df, tr)
