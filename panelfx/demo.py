@@ -216,7 +216,7 @@ def history_transforms() -> list:
     if hasattr(px, "time_since"):
         ts.append(px.time_since("dizzy"))
     if hasattr(px, "rolling"):
-        ts.append(px.rolling("sbp", "90D"))
+        ts.append(px.rolling("sbp", "mean", span="90D"))
     if hasattr(px, "within_between"):
         ts.append(px.within_between("dose_mg"))
     return ts
