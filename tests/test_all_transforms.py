@@ -60,7 +60,13 @@ def _draw(data: st.DataObject, type_name: str) -> tuple[Entry, object, Transform
     return entry, case, entry.make(case)
 
 
+# Half the profile's examples per transform type for each of the two per-type tests: with
+# ~15 types that is a few hundred in CI, tens of thousands under PANELFX_THOROUGH=1.
+PER_TYPE = settings(max_examples=max(10, settings.default.max_examples // 2))
+
+
 @pytest.mark.parametrize("type_name", TYPES)
+@PER_TYPE
 @given(data=st.data())
 def test_matches_reference(type_name, data):
     """derive() equals the per-subject loop reference for each catalogued configuration."""
@@ -72,6 +78,7 @@ def test_matches_reference(type_name, data):
 
 
 @pytest.mark.parametrize("type_name", TYPES)
+@PER_TYPE
 @given(data=st.data())
 def test_invariants_and_past_only(type_name, data):
     """Constant / non-decreasing outputs hold on generated panels; past-only claims hold

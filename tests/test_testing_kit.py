@@ -292,6 +292,21 @@ def test_strategies_need_hypothesis_with_a_clear_message():
     assert "needs hypothesis" in out and "pip install" in out
 
 
+def test_the_kit_never_changes_its_input():
+    df = visits()
+    stored = px.derive(df, px.baseline("y"), id="pid", time="day")
+    frames = {"df": df, "stored": stored}
+    before = {k: v.copy(deep=True) for k, v in frames.items()}
+    assert_constant_within(stored, "y_baseline", id="pid")
+    assert_non_decreasing_within(df.assign(y=df["day"]), "y", id="pid", time="day")
+    assert_past_only(df, px.lag("y"), id="pid", time="day")
+    assert_derived_from(stored, df, px.baseline("y"), id="pid", time="day", match="keys")
+    assert_panel_structure(df, id="pid", time="day")
+    reference(df, px.baseline("y"), id="pid", time="day")
+    for k, v in frames.items():
+        pd.testing.assert_frame_equal(v, before[k], check_exact=True)
+
+
 # --------------------------------------------------------------------------- strategies
 def _structure(case) -> None:
     f = case.frame
