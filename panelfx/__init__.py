@@ -15,6 +15,8 @@ from __future__ import annotations
 
 from .check import check
 from .derive import derive
+from .derivation import Derivation, DerivationFileError
+from . import accessor as _accessor  # registers DataFrame.px
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
@@ -49,6 +51,7 @@ __all__ = [
     "derive",
     "check",
     "Transform",
+    "Derivation",
     # transforms
     "baseline",
     "change_from_baseline",
@@ -75,4 +78,5 @@ __all__ = [
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",
+    "DerivationFileError",
 ]

@@ -1,0 +1,96 @@
+"""``DataFrame.px``: the panelfx functions as methods, for notebooks and method chains.
+
+Registered when :mod:`panelfx` is imported.  Every method delegates to the function of
+the same name, so the results are identical:
+
+- ``df.px.derive(*transforms, id=, time=, unit=)`` is :func:`panelfx.derive`;
+- ``df.px.check(id=, time=, ...)`` is :func:`panelfx.check`;
+- ``df.px.apply(derivation)`` is :meth:`panelfx.Derivation.apply` (a derivation, or
+  the path of a saved one);
+- ``df.px.dictionary()`` and ``df.px.derivation`` read back the provenance that
+  ``apply`` recorded in ``df.attrs["panelfx"]``.
+
+>>> import pandas as pd, panelfx as px
+>>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
+>>> out = df.px.apply(px.Derivation(px.change_from_baseline("sbp"), id="pid", time="day"))
+>>> out
+   pid  day    sbp  sbp_change
+0    1    0  150.0         0.0
+1    1   14  142.0        -8.0
+2    2    0  138.0         0.0
+>>> out.px.dictionary()[["column", "transform", "sources", "dtype"]]
+       column             transform sources    dtype
+0  sbp_change  change_from_baseline     sbp  float64
+"""
+
+from __future__ import annotations
+
+import os
+from typing import Any, Sequence
+
+import pandas as pd
+
+from ._transform import Transform
+from .errors import OptionError
+
+#: The accessor's name: ``frame.px``, like the usual ``import panelfx as px``.
+NAME = "px"
+
+
+class PanelAccessor:
+    """panelfx methods on a DataFrame (``frame.px``)."""
+
+    def __init__(self, frame: pd.DataFrame) -> None:
+        self._frame = frame
+
+    def derive(self, *transforms: Transform, id: str | Sequence[str], time: str, unit: str | None = None) -> pd.DataFrame:
+        """:func:`panelfx.derive` on this frame."""
+        from .derive import derive
+
+        return derive(self._frame, *transforms, id=id, time=time, unit=unit)
+
+    def check(self, *, id: str | Sequence[str], time: str, spacing: Any = None, tolerance: Any = None,
+              notes: bool = False) -> pd.DataFrame:
+        """:func:`panelfx.check` on this frame."""
+        from .check import check
+
+        return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes)
+
+    def apply(self, derivation: Any) -> pd.DataFrame:
+        """Apply a :class:`~panelfx.Derivation` (or the path of a saved one) to this frame."""
+        from .derivation import Derivation
+
+        if isinstance(derivation, (str, os.PathLike)):
+            derivation = Derivation.load(derivation)
+        if not isinstance(derivation, Derivation):
+            raise OptionError(f"apply needs a panelfx.Derivation or the path of a saved one, "
+                              f"got {type(derivation).__name__}")
+        return derivation.apply(self._frame)
+
+    @property
+    def provenance(self) -> dict[str, Any]:
+        """What ``Derivation.apply`` recorded on this frame (``frame.attrs["panelfx"]``)."""
+        from .derivation import ATTRS_KEY
+
+        record = self._frame.attrs.get(ATTRS_KEY)
+        if not isinstance(record, dict) or "derivation" not in record:
+            raise OptionError("this frame carries no panelfx provenance: it was not made by Derivation.apply "
+                              "(or an operation since then dropped frame.attrs)")
+        return record
+
+    @property
+    def derivation(self) -> Any:
+        """The :class:`~panelfx.Derivation` that made this frame's derived columns."""
+        from .derivation import Derivation
+
+        return Derivation.from_dict(self.provenance["derivation"])
+
+    def dictionary(self) -> pd.DataFrame:
+        """The data dictionary recorded by ``apply``: one row per derived column, with the
+        dtypes of the result (see :meth:`panelfx.Derivation.dictionary`)."""
+        from .derivation import DICTIONARY_COLUMNS
+
+        return pd.DataFrame(self.provenance["dictionary"], columns=DICTIONARY_COLUMNS)
+
+
+pd.api.extensions.register_dataframe_accessor(NAME)(PanelAccessor)

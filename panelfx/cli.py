@@ -1,0 +1,381 @@
+"""The file commands of ``python -m panelfx`` (also the ``panelfx`` console script).
+
+- ``check INPUT --id COL --time COL [--spacing S] [--tolerance T]``: print the structure
+  report of :func:`panelfx.check`.
+- ``apply DERIVATION INPUT -o OUTPUT``: apply a saved :class:`~panelfx.Derivation` to a
+  CSV or Parquet file and write Parquet or CSV.
+- ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
+
+Files are read and written through pyarrow; the format follows the extension (``.csv``,
+``.csv.gz``, ``.tsv``, ``.parquet``, ``.pq``) unless ``--input-format`` /
+``--output-format`` say otherwise.  Progress and a summary go to stderr, the report and
+the dictionary to stdout.
+
+Exit codes: 0 success; 1 ``check`` found fatal problems; 2 an error (bad arguments, an
+unreadable or malformed file, data the derivation refuses, a failed write), reported as
+one line on stderr.  Output is written to a temporary file beside the target and renamed
+into place only when complete, so a failed run never leaves a half-written file in place
+of a good one.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from typing import Any, Callable, Sequence
+
+import pandas as pd
+
+from .derivation import ATTRS_KEY, Derivation, write_atomic
+
+__all__ = ["COMMANDS", "read_frame", "write_frame"]
+
+#: Progress is reported on stderr every this many rows read or written.
+PROGRESS_ROWS = 1_000_000
+#: Rows per batch when reading Parquet and per slice when writing.
+BATCH_ROWS = 65_536
+#: Findings printed by ``check`` as a table before it says how many more there are.
+SHOW_FINDINGS = 100
+
+FORMATS = {".csv": "csv", ".tsv": "csv", ".txt": "csv", ".parquet": "parquet", ".pq": "parquet"}
+COMPRESSED = (".gz", ".bz2", ".zst", ".lz4")
+
+
+class UsageError(Exception):
+    """Bad arguments: reported as one line, exit code 2."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # one line, not argparse's usage dump and SystemExit
+        raise UsageError(f"{message} (see '{self.prog} --help')")
+
+
+# ---------------------------------------------------------------------------------- progress
+
+
+class Progress:
+    """Rows read / written, on stderr, every :data:`PROGRESS_ROWS` rows; silent with ``quiet``."""
+
+    def __init__(self, command: str, quiet: bool) -> None:
+        self.command = command
+        self.quiet = quiet
+
+    def say(self, text: str) -> None:
+        if not self.quiet:
+            print(f"panelfx {self.command}: {text}", file=sys.stderr, flush=True)
+
+    def step(self, verb: str, before: int, after: int, total: int | None = None) -> None:
+        if after // PROGRESS_ROWS > before // PROGRESS_ROWS:
+            of = f" of {total:,}" if total is not None else ""
+            self.say(f"{verb} {after:,}{of} rows")
+
+
+# ---------------------------------------------------------------------------------- files
+
+
+def _base_name(path: str) -> str:
+    """Lower-case name without a compression suffix (pyarrow reads .csv.gz and the like)."""
+    name = path.lower()
+    for ext in COMPRESSED:
+        if name.endswith(ext):
+            name = name[: -len(ext)]
+    return name
+
+
+def file_format(path: str, given: str | None, what: str) -> str:
+    if given:
+        return given
+    fmt = FORMATS.get(os.path.splitext(_base_name(path))[1])
+    if fmt is None:
+        raise UsageError(f"cannot tell the format of {what} {path!r} from its extension: use .csv or .parquet, "
+                         f"or give --{what}-format")
+    return fmt
+
+
+def read_frame(
+    path: str,
+    fmt: str | None = None,
+    *,
+    columns: Sequence[str] | None = None,
+    text_columns: Sequence[str] = (),
+    progress: Progress | None = None,
+) -> pd.DataFrame:
+    """Read a CSV or Parquet file through pyarrow into pandas (dates as datetime64).
+
+    ``columns`` reads only those; ``text_columns`` keeps CSV columns as text (ids such as
+    "007" would otherwise become numbers)."""
+    import pyarrow as pa
+
+    fmt = file_format(path, fmt, "input")
+    progress = progress or Progress("read", quiet=True)
+    if not os.path.exists(path):
+        raise FileNotFoundError(f"input file {path!r} does not exist")
+    if fmt == "parquet":
+        import pyarrow.parquet as pq
+
+        pf = pq.ParquetFile(path)
+        names = pf.schema_arrow.names
+        if columns is not None:
+            _require(names, columns, path)
+        total = pf.metadata.num_rows
+        batches, done = [], 0
+        for batch in pf.iter_batches(batch_size=BATCH_ROWS, columns=list(columns) if columns is not None else None):
+            batches.append(batch)
+            progress.step("read", done, done + batch.num_rows, total)
+            done += batch.num_rows
+        schema = pf.schema_arrow if columns is None else pa.schema([pf.schema_arrow.field(c) for c in columns],
+                                                                   metadata=pf.schema_arrow.metadata)
+        table = pa.Table.from_batches(batches, schema=schema)
+    else:
+        import pyarrow.csv as pc
+
+        delimiter = "\t" if _base_name(path).endswith(".tsv") else ","
+        convert = pc.ConvertOptions(
+            include_columns=list(columns) if columns is not None else None,
+            column_types={c: pa.string() for c in text_columns},
+        )
+        try:
+            table = pc.read_csv(path, parse_options=pc.ParseOptions(delimiter=delimiter), convert_options=convert)
+        except pa.ArrowInvalid as err:
+            message = str(err)
+            if "include_columns" in message or "not found" in message.lower():
+                raise KeyError(f"{path}: {message}") from None
+            raise
+        progress.step("read", 0, table.num_rows)
+    frame = table.to_pandas(date_as_object=False)
+    progress.say(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}")
+    return frame
+
+
+def _require(names: Sequence[str], columns: Sequence[str], path: str) -> None:
+    missing = [c for c in columns if c not in names]
+    if missing:
+        from .errors import MissingColumnError
+
+        raise MissingColumnError(f"column {missing[0]!r} is not in {path} (columns: {list(names)[:20]})",
+                                 column=missing[0], count=len(missing))
+
+
+def write_frame(
+    frame: pd.DataFrame,
+    path: str,
+    fmt: str | None = None,
+    *,
+    metadata: dict[str, Any] | None = None,
+    field_metadata: dict[str, dict[str, Any]] | None = None,
+    progress: Progress | None = None,
+) -> None:
+    """Write ``frame`` as Parquet or CSV through pyarrow, atomically (temporary file + rename).
+
+    ``metadata`` goes into the Parquet file's key-value metadata as JSON (key ``panelfx``),
+    ``field_metadata`` onto the named columns' fields; CSV has no place for either."""
+    import pyarrow as pa
+
+    fmt = file_format(path, fmt, "output")
+    progress = progress or Progress("write", quiet=True)
+    table = pa.Table.from_pandas(frame)
+    if fmt == "parquet":
+        fields = []
+        for field in table.schema:
+            extra = (field_metadata or {}).get(field.name)
+            fields.append(field.with_metadata({**(field.metadata or {}), ATTRS_KEY.encode(): _dumps(extra)})
+                          if extra else field)
+        schema_meta = dict(table.schema.metadata or {})
+        if metadata is not None:
+            schema_meta[ATTRS_KEY.encode()] = _dumps(metadata)
+        table = pa.Table.from_arrays(table.columns, schema=pa.schema(fields, metadata=schema_meta))
+    else:
+        # CSV cannot hold categories: write their values.
+        for i, field in enumerate(table.schema):
+            if pa.types.is_dictionary(field.type):
+                table = table.set_column(i, field.name, table.column(i).cast(field.type.value_type))
+
+    def write(tmp: str) -> None:
+        done = 0
+        step = max(1, min(BATCH_ROWS * 16, PROGRESS_ROWS))
+        if fmt == "parquet":
+            import pyarrow.parquet as pq
+
+            with pq.ParquetWriter(tmp, table.schema) as writer:
+                for start in range(0, max(table.num_rows, 1), step):
+                    part = table.slice(start, step)
+                    writer.write_table(part)
+                    progress.step("wrote", done, done + part.num_rows, table.num_rows)
+                    done += part.num_rows
+        else:
+            import pyarrow.csv as pc
+
+            with pc.CSVWriter(tmp, table.schema) as writer:
+                for start in range(0, table.num_rows, step):
+                    part = table.slice(start, step)
+                    writer.write_table(part)
+                    progress.step("wrote", done, done + part.num_rows, table.num_rows)
+                    done += part.num_rows
+
+    write_atomic(path, write)
+    progress.say(f"wrote {table.num_rows:,} rows, {table.num_columns} columns to {path}")
+
+
+def _dumps(value: Any) -> bytes:
+    return json.dumps(value, ensure_ascii=False, allow_nan=False, default=str).encode("utf-8")
+
+
+# ---------------------------------------------------------------------------------- commands
+
+
+def _number_or_text(value: str) -> float | int | str:
+    """``--spacing 30`` is a number (numeric times), ``--spacing 30D`` a time span (datetimes)."""
+    try:
+        number = float(value)
+    except ValueError:
+        return value
+    return int(number) if number.is_integer() and "." not in value and "e" not in value.lower() else number
+
+
+def _check(argv: list[str]) -> int:
+    from .check import check
+
+    parser = _Parser(prog="panelfx check", description="Print the structure report of a long-format panel file "
+                     "(exit code 1 when fatal problems are found).")
+    parser.add_argument("input", help="CSV or Parquet file, one row per subject per occasion")
+    parser.add_argument("--id", action="append", required=True, metavar="COL",
+                        help="subject id column; repeat for several (e.g. --id site --id subject)")
+    parser.add_argument("--time", required=True, metavar="COL", help="occasion time column (numbers or dates)")
+    parser.add_argument("--spacing", type=_number_or_text, metavar="S",
+                        help="planned interval between occasions: a number, or a span such as 30D for dates")
+    parser.add_argument("--tolerance", type=_number_or_text, metavar="T",
+                        help="allowed distance from the planned time (default a quarter of --spacing)")
+    parser.add_argument("--notes", action="store_true", help="also report single-occasion subjects and row order")
+    parser.add_argument("--csv", action="store_true", help="print every finding as CSV instead of a table")
+    parser.add_argument("--text", action="append", default=[], metavar="COL",
+                        help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
+    parser.add_argument("--input-format", choices=["csv", "parquet"])
+    parser.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+    args = parser.parse_args(argv)
+    progress = Progress("check", args.quiet)
+    frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys([*args.id, args.time])],
+                       text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress)
+    report = check(frame, id=args.id if len(args.id) > 1 else args.id[0], time=args.time,
+                   spacing=args.spacing, tolerance=args.tolerance, notes=args.notes)
+    fatal = int((report["severity"] == "fatal").sum())
+    if args.csv:
+        report.to_csv(sys.stdout, index=False)
+    elif report.empty:
+        print(f"no structural problems found in {args.input} ({len(frame):,} rows)")
+    else:
+        counts = report["severity"].value_counts()
+        words = ", ".join(f"{int(counts[s])} {s}" for s in ("fatal", "warning", "note") if s in counts)
+        print(f"{len(report):,} finding(s) in {args.input} ({len(frame):,} rows): {words}")
+        print(report.head(SHOW_FINDINGS).to_string(index=False))
+        if len(report) > SHOW_FINDINGS:
+            print(f"... and {len(report) - SHOW_FINDINGS:,} more (--csv prints every finding)")
+        print("row is the 0-based position of the data row in the file")
+    return 1 if fatal else 0
+
+
+def _apply(argv: list[str]) -> int:
+    parser = _Parser(prog="panelfx apply", description="Apply a saved derivation to a CSV or Parquet file and "
+                     "write the result (Parquet keeps the derivation and its data dictionary in its metadata).")
+    parser.add_argument("derivation", help="saved derivation (JSON, from Derivation.save)")
+    parser.add_argument("input", help="CSV or Parquet file")
+    parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv")
+    parser.add_argument("--text", action="append", default=[], metavar="COL",
+                        help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
+    parser.add_argument("--input-format", choices=["csv", "parquet"])
+    parser.add_argument("--output-format", choices=["csv", "parquet"])
+    parser.add_argument("-q", "--quiet", action="store_true", help="no progress or summary on stderr")
+    args = parser.parse_args(argv)
+    progress = Progress("apply", args.quiet)
+    # Fail fast, before reading a large input: the derivation, the formats, the output folder.
+    derivation = Derivation.load(args.derivation)
+    file_format(args.input, args.input_format, "input")
+    file_format(args.output, args.output_format, "output")
+    folder = os.path.dirname(os.path.abspath(args.output))
+    if not os.path.isdir(folder):
+        raise FileNotFoundError(f"output folder {folder!r} does not exist")
+    if file_format(args.input, args.input_format, "input") == "parquet" and os.path.exists(args.input):
+        import pyarrow.parquet as pq
+
+        _require(pq.read_schema(args.input).names, [*derivation.id_cols, derivation.time, *derivation.inputs()],
+                 args.input)
+    frame = read_frame(args.input, args.input_format, text_columns=args.text, progress=progress)
+    result = derivation.apply(frame)
+    progress.say(f"derived {len(derivation.outputs())} column(s): {', '.join(derivation.outputs())}")
+    record = {**result.attrs[ATTRS_KEY], "input": os.path.basename(args.input)}
+    fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
+    write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
+    return 0
+
+
+def _dictionary(argv: list[str]) -> int:
+    parser = _Parser(prog="panelfx dictionary", description="Print the data dictionary of a saved derivation: "
+                     "one row per output column.")
+    parser.add_argument("derivation", help="saved derivation (JSON)")
+    parser.add_argument("input", nargs="?", help="optional CSV or Parquet file: fills in the dtypes of the result")
+    parser.add_argument("--csv", action="store_true", help="print CSV instead of a table")
+    parser.add_argument("--text", action="append", default=[], metavar="COL",
+                        help="read this CSV column as text; repeatable")
+    parser.add_argument("--input-format", choices=["csv", "parquet"])
+    parser.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+    args = parser.parse_args(argv)
+    derivation = Derivation.load(args.derivation)
+    frame = None
+    if args.input is not None:
+        frame = read_frame(args.input, args.input_format, text_columns=args.text,
+                           progress=Progress("dictionary", args.quiet))
+    table = derivation.dictionary(frame)
+    if args.csv:
+        table.to_csv(sys.stdout, index=False)
+        return 0
+    ids = derivation.id if isinstance(derivation.id, str) else ", ".join(derivation.id)
+    if derivation.description:
+        print(derivation.description)
+    print(f"panel: id {ids}; time {derivation.time}" + (f"; unit {derivation.unit}" if derivation.unit else ""))
+    if table.empty:
+        print("(the derivation has no transforms)")
+    else:
+        with pd.option_context("display.max_colwidth", None, "display.width", 10_000):
+            print(table.to_string(index=False))
+    return 0
+
+
+def _run(name: str, command: Callable[[list[str]], int]) -> Callable[[list[str]], int]:
+    """Wrap a command: errors become one line on stderr and exit code 2."""
+
+    def run(argv: list[str]) -> int:
+        try:
+            return command(list(argv))
+        except SystemExit as stop:  # --help
+            return stop.code if isinstance(stop.code, int) else 0
+        except KeyboardInterrupt:
+            print(f"panelfx {name}: interrupted", file=sys.stderr)
+            return 130
+        except Exception as err:  # noqa: BLE001 - the command line reports every failure in one line
+            print(f"panelfx {name}: error: {_one_line(err)}", file=sys.stderr)
+            return 2
+
+    run.__name__ = f"{name}_command"
+    run.__doc__ = command.__doc__
+    return run
+
+
+def _one_line(err: BaseException) -> str:
+    from .errors import PanelError
+
+    text = str(err) if not isinstance(err, KeyError) or isinstance(err, PanelError) else str(err.args[0])
+    if isinstance(err, OSError) and err.filename and err.strerror:
+        text = f"{err.strerror}: {err.filename}"
+    text = " ".join(text.split()) or type(err).__name__
+    if isinstance(err, (PanelError, UsageError, OSError)):
+        return text
+    return f"{type(err).__name__}: {text}"
+
+
+#: name -> function(argv) -> exit code; dispatched by ``python -m panelfx``.
+COMMANDS: dict[str, Callable[[list[str]], int]] = {
+    "check": _run("check", _check),
+    "apply": _run("apply", _apply),
+    "dictionary": _run("dictionary", _dictionary),
+}

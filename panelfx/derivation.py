@@ -1,0 +1,616 @@
+"""Saved derivations: a panel declaration and an ordered list of transforms, as one value.
+
+A :class:`Derivation` is what a data-management pipeline reviews, versions and re-runs on
+every data cut.  It applies exactly as :func:`panelfx.derive` does, saves to plain,
+versioned JSON (no pickle, no eval, no import of names taken from the file) and
+describes its output columns in a data dictionary.
+
+The JSON layer is generic: a transform is saved as its ``type_name`` and its dataclass
+fields, and read back through ``panelfx._transform.REGISTRY``.  The type of each option
+is checked against the field's annotation, then the transform's own ``__post_init__``
+checks its rules, so a new transform needs no code here.
+
+File layout (version 1)::
+
+    {
+      "format": "panelfx.derivation",
+      "version": 1,
+      "description": "...",
+      "panel": {"id": "pid", "time": "day", "unit": null},
+      "transforms": [{"type": "lag", "options": {"col": "sbp", ...}}, ...]
+    }
+
+Options left out of a file take the transform's defaults; unknown keys are errors.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import os
+import tempfile
+import types
+import typing
+from typing import Any, Iterable, Literal, Mapping, Sequence, Union
+
+import numpy as np
+import pandas as pd
+
+from ._panel import UNITS_NS, as_id_list, time_kind
+from ._transform import REGISTRY, Transform
+from .derive import derive
+from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
+
+__all__ = ["Derivation", "DerivationFileError", "FORMAT", "VERSION", "DICTIONARY_COLUMNS"]
+
+#: Marker of a saved derivation and the version of the layout this panelfx writes and reads.
+FORMAT = "panelfx.derivation"
+VERSION = 1
+
+#: Columns of :meth:`Derivation.dictionary`, in order.
+DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit"]
+
+#: Key of the provenance record in ``DataFrame.attrs`` (and in Parquet metadata).
+ATTRS_KEY = "panelfx"
+
+UNIT_WORDS = {
+    "ns": "nanoseconds", "us": "microseconds", "ms": "milliseconds", "s": "seconds", "min": "minutes",
+    "h": "hours", "D": "days", "W": "weeks", "Y": "years of 365.25 days",
+}
+
+
+class DerivationFileError(OptionError):
+    """A saved derivation is malformed: bad JSON, wrong version, unknown key or transform,
+    or an option of the wrong type.  ``path`` is where in the file (``transforms[1].options.periods``)."""
+
+    def __init__(self, message: str, *, path: str = "") -> None:
+        super().__init__(f"{path}: {message}" if path else message, column=None)
+        self.path = path
+
+
+# ---------------------------------------------------------------------------------- value
+
+
+@dataclasses.dataclass(frozen=True, init=False)
+class Derivation:
+    """A panel declaration (``id``, ``time``, ``unit``) and an ordered list of transforms.
+
+    ``Derivation(*transforms, id=, time=, unit=None, description="")`` takes the same
+    arguments as :func:`panelfx.derive`; ``apply(frame)`` gives exactly what ``derive``
+    gives, and records the provenance in ``result.attrs["panelfx"]``.  The order of the
+    transforms is checked when the derivation is built: a transform may use a column made
+    by an earlier one, never by a later one, and no two transforms may make the same column.
+
+    >>> import pandas as pd, panelfx as px
+    >>> d = px.Derivation(px.baseline("sbp"), px.change_from_baseline("sbp"), id="pid", time="day")
+    >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
+    >>> d.apply(df)
+       pid  day    sbp  sbp_baseline  sbp_change
+    0    1    0  150.0         150.0         0.0
+    1    1   14  142.0         150.0        -8.0
+    2    2    0  138.0         138.0         0.0
+    >>> px.Derivation.from_json(d.to_json()) == d
+    True
+    >>> d.extend(px.lag("sbp_change")).outputs()
+    ('sbp_baseline', 'sbp_change', 'sbp_change_lag1')
+    """
+
+    id: str | tuple[str, ...]
+    time: str
+    unit: str | None
+    transforms: tuple[Transform, ...]
+    description: str
+
+    def __init__(
+        self,
+        *transforms: Transform,
+        id: str | Sequence[str],
+        time: str,
+        unit: str | None = None,
+        description: str = "",
+    ) -> None:
+        ids = as_id_list(id)
+        if not isinstance(time, str) or not time:
+            raise OptionError(f"time must be a column name (a non-empty string), got {time!r}")
+        if time in ids:
+            raise OptionError(f"time column {time!r} is also an id column")
+        if unit is not None and unit not in UNITS_NS:
+            raise OptionError(f"unit must be one of {sorted(UNITS_NS)} or None, got {unit!r}")
+        if not isinstance(description, str):
+            raise OptionError(f"description must be a string, got {description!r}")
+        if len(transforms) == 1 and isinstance(transforms[0], (list, tuple)):
+            transforms = tuple(transforms[0])  # Derivation([t1, t2], ...) reads naturally too
+        _check_order(transforms, ids, time)
+        object.__setattr__(self, "id", ids[0] if isinstance(id, str) else tuple(ids))
+        object.__setattr__(self, "time", time)
+        object.__setattr__(self, "unit", unit)
+        object.__setattr__(self, "transforms", tuple(transforms))
+        object.__setattr__(self, "description", description)
+
+    # -------------------------------------------------------------- what it does
+    @property
+    def id_cols(self) -> list[str]:
+        return as_id_list(self.id)
+
+    def inputs(self) -> tuple[str, ...]:
+        """Columns the input frame must have besides id and time (not made by an earlier transform)."""
+        made: set[str] = set()
+        need: dict[str, None] = {}
+        for tr in self.transforms:
+            for col in tr.inputs():
+                if col not in made:
+                    need[col] = None
+            made.update(tr.outputs())
+        return tuple(need)
+
+    def outputs(self) -> tuple[str, ...]:
+        """Names of the columns ``apply`` adds, in order."""
+        return tuple(name for tr in self.transforms for name in tr.outputs())
+
+    def extend(self, *more: Transform | "Derivation") -> "Derivation":
+        """A new derivation with more transforms (or the transforms of other derivations
+        with the same panel declaration) after these ones."""
+        added: list[Transform] = []
+        for item in more:
+            if isinstance(item, Derivation):
+                if (item.id_cols, item.time, item.unit) != (self.id_cols, self.time, self.unit):
+                    raise OptionError(
+                        f"cannot extend a derivation of (id={self.id!r}, time={self.time!r}, unit={self.unit!r}) "
+                        f"with one of (id={item.id!r}, time={item.time!r}, unit={item.unit!r})"
+                    )
+                added.extend(item.transforms)
+            else:
+                added.append(item)
+        return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
+                          description=self.description)
+
+    def apply(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """``derive(frame, *transforms, id=, time=, unit=)``, with the provenance (this
+        derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
+        already on the input is kept under ``"previous"``."""
+        out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit)
+        record: dict[str, Any] = {
+            "derivation": self.to_dict(),
+            "dictionary": _dictionary_records(self._dictionary_from_result(out)),
+        }
+        previous = frame.attrs.get(ATTRS_KEY) if isinstance(frame.attrs, dict) else None
+        if previous is not None:
+            record["previous"] = previous
+        out.attrs[ATTRS_KEY] = record
+        return out
+
+    # -------------------------------------------------------------- data dictionary
+    def dictionary(self, frame: pd.DataFrame | None = None) -> pd.DataFrame:
+        """One row per output column: ``column``, ``step`` (the transform's number, from 1),
+        ``transform`` (type name), ``sources`` (the columns it reads besides id and time,
+        comma-separated; empty when it uses only id and time), ``description`` (the
+        options in words), ``past_only``, ``dtype`` and ``time_unit``.
+
+        ``past_only`` is True only when the transform is past-only *and* every derived
+        column it reads is past-only too (a lag of a baseline can still see the future).
+
+        ``dtype`` is the dtype of the applied result when ``frame`` is given (the
+        derivation is applied to it; a sample of the input is usually enough, though
+        integers can become floats where values are missing); without a frame it is
+        missing (``None``), since most outputs keep or depend on the input's dtype.
+
+        ``time_unit`` is the unit of durations, rates and areas: ``unit`` (default "D",
+        days) for datetime times, the time column's own units for numeric times.
+
+        >>> import panelfx as px
+        >>> d = px.Derivation(px.baseline("sbp"), px.lag("sbp_baseline"), id="pid", time="day")
+        >>> d.dictionary()[["column", "step", "transform", "sources", "past_only"]]
+                     column  step transform       sources  past_only
+        0      sbp_baseline     1  baseline           sbp      False
+        1  sbp_baseline_lag1     2       lag  sbp_baseline      False
+        """
+        if frame is not None:
+            return self._dictionary_from_result(self.apply(frame))
+        if self.unit is not None:
+            unit = _unit_words(self.unit)
+        else:
+            unit = f"{_unit_words('D')} for datetime times, else the units of {self.time!r}"
+        return self._dictionary(dtypes={}, time_unit=unit)
+
+    def _dictionary_from_result(self, result: pd.DataFrame) -> pd.DataFrame:
+        kind = time_kind(result[self.time])
+        unit = f"the units of {self.time!r}" if kind == "number" else _unit_words(self.unit or "D")
+        return self._dictionary(dtypes={c: str(result[c].dtype) for c in self.outputs()}, time_unit=unit)
+
+    def _dictionary(self, dtypes: Mapping[str, str], time_unit: str) -> pd.DataFrame:
+        rows = []
+        past: dict[str, bool] = {}
+        for step, tr in enumerate(self.transforms, start=1):
+            sources = tr.inputs()
+            only_past = bool(tr.past_only) and all(past.get(c, True) for c in sources)
+            outs = tr.outputs()
+            for k, name in enumerate(outs, start=1):
+                past[name] = only_past
+                words = tr.describe() if len(outs) == 1 else f"{tr.describe()} [output {k} of {len(outs)}]"
+                rows.append({
+                    "column": name, "step": step, "transform": tr.type_name, "sources": ", ".join(sources),
+                    "description": words, "past_only": only_past, "dtype": dtypes.get(name),
+                    "time_unit": time_unit,
+                })
+        if not rows:
+            return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
+        table = pd.DataFrame(rows, columns=DICTIONARY_COLUMNS)
+        table["dtype"] = table["dtype"].astype(object)
+        return table
+
+    # -------------------------------------------------------------- saving
+    def to_dict(self) -> dict[str, Any]:
+        """The saved form as plain Python values (what :meth:`to_json` writes)."""
+        doc: dict[str, Any] = {
+            "format": FORMAT,
+            "version": VERSION,
+            "description": self.description,
+            "panel": {"id": self.id if isinstance(self.id, str) else list(self.id), "time": self.time,
+                      "unit": self.unit},
+            "transforms": [],
+        }
+        for i, tr in enumerate(self.transforms):
+            path = f"transforms[{i}]"
+            options = {f.name: _plain(getattr(tr, f.name), f"{path}.options.{f.name}", tr)
+                       for f in dataclasses.fields(tr) if f.init}
+            doc["transforms"].append({"type": tr.type_name, "options": options})
+        return doc
+
+    def to_json(self, indent: int | None = 2) -> str:
+        """Plain, versioned JSON; keys in a fixed order so that saved files diff cleanly."""
+        return json.dumps(self.to_dict(), indent=indent, ensure_ascii=False, allow_nan=False)
+
+    @classmethod
+    def from_dict(cls, doc: Any) -> "Derivation":
+        """Rebuild from the plain values of :meth:`to_dict`, checking every key and type."""
+        _expect(doc, dict, "", "the file must hold a JSON object")
+        _no_unknown(doc, {"format", "version", "description", "panel", "transforms"}, "")
+        if "format" not in doc:
+            raise DerivationFileError(f"not a saved panelfx derivation: no 'format' key (expected {FORMAT!r})",
+                                      path="format")
+        if doc["format"] != FORMAT:
+            raise DerivationFileError(f"not a saved panelfx derivation: format is {doc['format']!r}, "
+                                      f"expected {FORMAT!r}", path="format")
+        version = _required(doc, "version", "")
+        if isinstance(version, bool) or not isinstance(version, int):
+            raise DerivationFileError(f"must be an integer, got {version!r}", path="version")
+        if version != VERSION:
+            newer = " (written by a newer panelfx: upgrade panelfx)" if version > VERSION else ""
+            raise DerivationFileError(f"format version {version} is not supported; this panelfx reads version "
+                                      f"{VERSION}{newer}", path="version")
+        description = doc.get("description", "")
+        _expect(description, str, "description", "must be a string")
+        panel = _required(doc, "panel", "")
+        _expect(panel, dict, "panel", "must be an object with keys id, time, unit")
+        _no_unknown(panel, {"id", "time", "unit"}, "panel")
+        id_ = _required(panel, "id", "panel")
+        if isinstance(id_, list):
+            if not id_ or not all(isinstance(c, str) and c for c in id_):
+                raise DerivationFileError(f"must be a column name or a list of column names, got {id_!r}",
+                                          path="panel.id")
+            id_ = tuple(id_)
+        else:
+            _expect(id_, str, "panel.id", "must be a column name or a list of column names")
+        time = _required(panel, "time", "panel")
+        _expect(time, str, "panel.time", "must be a column name")
+        unit = panel.get("unit")
+        if unit is not None:
+            _expect(unit, str, "panel.unit", f"must be null or one of {sorted(UNITS_NS)}")
+        items = _required(doc, "transforms", "")
+        _expect(items, list, "transforms", "must be a list")
+        transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
+        try:
+            return cls(*transforms, id=id_, time=time, unit=unit, description=description)
+        except PanelError as err:
+            where = "transforms" if isinstance(err, (MissingColumnError, ColumnExistsError)) else "panel"
+            raise DerivationFileError(str(err), path=where) from None
+
+    @classmethod
+    def from_json(cls, text: str | bytes) -> "Derivation":
+        """Read a saved derivation; malformed input raises :class:`DerivationFileError`
+        naming the key and its path in the file."""
+        if isinstance(text, bytes):
+            try:
+                text = text.decode("utf-8")
+            except UnicodeDecodeError as err:
+                raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start})") from None
+        if not isinstance(text, str):
+            raise TypeError(f"from_json expects a str, got {type(text).__name__}")
+        try:
+            doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
+        except json.JSONDecodeError as err:
+            hint = " (the file looks truncated)" if err.pos >= len(text.rstrip()) else ""
+            raise DerivationFileError(
+                f"not valid JSON: {err.msg} at line {err.lineno}, column {err.colno}{hint}") from None
+        return cls.from_dict(doc)
+
+    def save(self, path: str | os.PathLike[str]) -> None:
+        """Write :meth:`to_json` to ``path`` (a temporary file renamed into place, so a
+        failed write never leaves a half-written file)."""
+        write_atomic(path, lambda tmp: _write_text(tmp, self.to_json() + "\n"))
+
+    @classmethod
+    def load(cls, path: str | os.PathLike[str]) -> "Derivation":
+        """Read a derivation saved with :meth:`save`."""
+        with open(path, "rb") as fh:
+            data = fh.read()
+        try:
+            return cls.from_json(data)
+        except DerivationFileError as err:
+            raise DerivationFileError(f"{os.fspath(path)}: {err}") from None
+
+
+# ---------------------------------------------------------------------------------- helpers
+
+
+def _check_order(transforms: Sequence[Any], id_cols: Sequence[str], time: str) -> None:
+    """The checks of :func:`panelfx.derive.plan` that need no frame."""
+    made: dict[str, int] = {}
+    keys = {*id_cols, time}
+    for i, tr in enumerate(transforms):
+        if not isinstance(tr, Transform):
+            raise OptionError(f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
+                              f"(build one with e.g. panelfx.baseline('col'))")
+        for col in tr.inputs():
+            if col in keys:
+                raise OptionError(f"transform #{i + 1} ({tr.type_name}) uses the id or time column {col!r} as a value")
+            later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
+                     if isinstance(t, Transform) and col in t.outputs()]
+            if col not in made and later:
+                raise MissingColumnError(
+                    f"column {col!r} needed by transform #{i + 1} ({tr.type_name}) is made by a later transform "
+                    f"(#{later[0]}, {transforms[later[0] - 1].type_name}): reorder them",
+                    column=col, count=1,
+                )
+        for out in tr.outputs():
+            if out in keys:
+                raise ColumnExistsError(f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is the id or "
+                                        f"time column; choose another with name=", column=out, count=1)
+            if out in made:
+                raise ColumnExistsError(
+                    f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is also made by transform "
+                    f"#{made[out] + 1}; choose another with name=", column=out, count=1)
+            made[out] = i
+
+
+def _unit_words(unit: str) -> str:
+    return f"{unit} ({UNIT_WORDS.get(unit, unit)})"
+
+
+def _dictionary_records(table: pd.DataFrame) -> list[dict[str, Any]]:
+    return [{k: (v.item() if isinstance(v, np.generic) else v) for k, v in row.items()}
+            for row in table.to_dict(orient="records")]
+
+
+def _plain(value: Any, path: str, tr: Transform) -> Any:
+    """An option as a plain JSON value, or a clear error saying why it cannot be saved."""
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, int):
+        return value
+    if isinstance(value, float):
+        if not math.isfinite(value):
+            raise OptionError(f"{path}: {value!r} cannot be saved as JSON (transform {tr.type_name})")
+        return value
+    if isinstance(value, (list, tuple)):
+        return [_plain(v, f"{path}[{k}]", tr) for k, v in enumerate(value)]
+    if isinstance(value, dict) and all(isinstance(k, str) for k in value):
+        return {k: _plain(v, f"{path}.{k}", tr) for k, v in value.items()}
+    raise OptionError(f"{path}: a {type(value).__name__} ({value!r}) cannot be saved as JSON (transform "
+                      f"{tr.type_name}); give a plain value such as a number or a string like '90D'")
+
+
+def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for k, v in pairs:
+        if k in out:
+            raise DerivationFileError(f"duplicate key {k!r} in an object of the file")
+        out[k] = v
+    return out
+
+
+def _no_constant(name: str) -> Any:
+    raise DerivationFileError(f"{name} is not a JSON value")
+
+
+def _kind(value: Any) -> str:
+    if value is None:
+        return "null"
+    return {bool: "true/false", int: "an integer", float: "a number", str: "a string", list: "a list",
+            dict: "an object"}.get(type(value), type(value).__name__)
+
+
+def _expect(value: Any, kind: type, path: str, rule: str) -> None:
+    if not isinstance(value, kind):
+        raise DerivationFileError(f"{rule}, got {_kind(value)} ({value!r})" if path else
+                                  f"{rule}, got {_kind(value)}", path=path)
+
+
+def _required(obj: dict[str, Any], key: str, path: str) -> Any:
+    if key not in obj:
+        raise DerivationFileError("missing key", path=_join(path, key))
+    return obj[key]
+
+
+def _no_unknown(obj: dict[str, Any], allowed: Iterable[str], path: str) -> None:
+    allowed = list(allowed)
+    for key in obj:
+        if key not in allowed:
+            raise DerivationFileError(f"unknown key (expected one of {allowed})", path=_join(path, key))
+
+
+def _join(path: str, key: str) -> str:
+    return f"{path}.{key}" if path else key
+
+
+def _transform_from(item: Any, path: str) -> Transform:
+    _expect(item, dict, path, "each transform must be an object with keys type and options")
+    _no_unknown(item, ("type", "options"), path)
+    type_name = _required(item, "type", path)
+    _expect(type_name, str, f"{path}.type", "must be the name of a transform")
+    cls = REGISTRY.get(type_name)
+    if cls is None:
+        raise DerivationFileError(f"unknown transform {type_name!r} (known: {sorted(REGISTRY)})", path=f"{path}.type")
+    options = item.get("options", {})
+    _expect(options, dict, f"{path}.options", "must be an object")
+    fields = {f.name: f for f in dataclasses.fields(cls) if f.init}
+    hints = _hints(cls)
+    kwargs: dict[str, Any] = {}
+    for key, value in options.items():
+        where = f"{path}.options.{key}"
+        if key not in fields:
+            raise DerivationFileError(f"unknown option of transform {type_name!r} (options: {list(fields)})",
+                                      path=where)
+        kwargs[key] = _convert(value, hints.get(key, Any), where)
+    missing = [name for name, f in fields.items() if name not in kwargs
+               and f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING]
+    if missing:
+        raise DerivationFileError(f"missing option of transform {type_name!r}", path=f"{path}.options.{missing[0]}")
+    try:
+        return cls(**kwargs)
+    except PanelError as err:
+        # The transform's own rules ("periods must be a non-zero integer, got 0"): point at the option.
+        message = str(err)
+        named = next((k for k in kwargs if message.startswith(f"{k} ") or message.startswith(f"{k}=")), None)
+        raise DerivationFileError(f"{message} (transform {type_name!r})",
+                                  path=f"{path}.options.{named}" if named else f"{path}.options") from None
+    except (TypeError, ValueError) as err:
+        raise DerivationFileError(f"transform {type_name!r} rejects its options: {err}",
+                                  path=f"{path}.options") from None
+
+
+def _hints(cls: type) -> dict[str, Any]:
+    """Field annotations resolved in the transform's own module (never from the file).
+    Annotations that cannot be resolved are left to the transform's validation."""
+    try:
+        return typing.get_type_hints(cls)
+    except Exception:  # noqa: BLE001 - e.g. a name imported only for type checkers
+        return {}
+
+
+_NoneType = type(None)
+
+
+def _convert(value: Any, hint: Any, path: str) -> Any:
+    """Check a JSON value against a field annotation; JSON lists become tuples where the
+    annotation says tuple (frozen transforms must stay hashable)."""
+    ok, out = _match(value, hint)
+    if not ok:
+        raise DerivationFileError(f"must be {_describe_hint(hint)}, got {_kind(value)} ({value!r})", path=path)
+    return out
+
+
+def _match(value: Any, hint: Any) -> tuple[bool, Any]:
+    if hint is Any or hint is object:
+        return True, value
+    if hint is None or hint is _NoneType:
+        return value is None, value
+    origin = typing.get_origin(hint)
+    args = typing.get_args(hint)
+    if origin is Union or (hasattr(types, "UnionType") and isinstance(hint, types.UnionType)):
+        for arg in args:
+            ok, out = _match(value, arg)
+            if ok:
+                return True, out
+        return False, value
+    if origin is Literal:
+        return any(value == a and type(value) is type(a) for a in args), value
+    if hint is bool:
+        return isinstance(value, bool), value
+    if hint is int:
+        return isinstance(value, int) and not isinstance(value, bool), value
+    if hint is float:  # an int is a fine float (JSON writes 30.0 as 30.0, but people write 30)
+        return isinstance(value, (int, float)) and not isinstance(value, bool), value
+    if hint is str:
+        return isinstance(value, str), value
+    seq = origin or hint
+    if seq in (list, tuple, Sequence, typing.Sequence) or (isinstance(seq, type) and seq.__name__ == "Sequence"):
+        if not isinstance(value, list):
+            return False, value
+        if origin is tuple and args and not (len(args) == 2 and args[1] is Ellipsis):
+            if len(args) != len(value):
+                return False, value
+            item_hints = list(args)
+        else:
+            item_hints = [args[0] if args else Any] * len(value)
+        items = []
+        for v, h in zip(value, item_hints):
+            ok, out = _match(v, h)
+            if not ok:
+                return False, value
+            items.append(out)
+        return True, (list(items) if seq is list else tuple(items))
+    if seq in (dict, Mapping, typing.Mapping):
+        if not isinstance(value, dict):
+            return False, value
+        vh = args[1] if len(args) == 2 else Any
+        out = {}
+        for k, v in value.items():
+            ok, conv = _match(v, vh)
+            if not ok:
+                return False, value
+            out[k] = conv
+        return True, out
+    return True, value  # an annotation we do not know: the transform's validation decides
+
+
+def _describe_hint(hint: Any) -> str:
+    if hint is None or hint is _NoneType:
+        return "null"
+    origin = typing.get_origin(hint)
+    if origin is Union or (hasattr(types, "UnionType") and isinstance(hint, types.UnionType)):
+        return " or ".join(_describe_hint(a) for a in typing.get_args(hint))
+    if origin is Literal:
+        return "one of " + ", ".join(repr(a) for a in typing.get_args(hint))
+    names = {bool: "true or false", int: "an integer", float: "a number", str: "a string"}
+    if hint in names:
+        return names[hint]
+    args = typing.get_args(hint)
+    if origin is tuple and args and not (len(args) == 2 and args[1] is Ellipsis):
+        return f"a list of {len(args)} ({', '.join(_describe_hint(a) for a in args)})"
+    if origin in (list, tuple) or (origin is not None and getattr(origin, "__name__", "") == "Sequence"):
+        return f"a list of {_describe_hint(args[0])} values" if args else "a list"
+    if origin is dict:
+        return "an object"
+    return str(hint)
+
+
+# ---------------------------------------------------------------------------------- files
+
+
+def _write_text(path: str, text: str) -> None:
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write(text)
+
+
+def write_atomic(path: str | os.PathLike[str], write: Any) -> None:
+    """Call ``write(tmp)`` on a temporary file beside ``path``, then rename it over ``path``.
+
+    On any failure (including Ctrl-C) the temporary file is removed and ``path`` is left
+    as it was, so a failed run never replaces a good file with a half-written one.
+    """
+    target = os.path.abspath(os.fspath(path))
+    folder, base = os.path.split(target)
+    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=".panelfx-tmp", dir=folder)
+    os.close(fd)
+    try:
+        write(tmp)
+        if os.path.exists(target):
+            try:  # keep the permissions of the file being replaced
+                os.chmod(tmp, os.stat(target).st_mode & 0o7777)
+            except OSError:
+                pass
+        else:
+            umask = os.umask(0)
+            os.umask(umask)
+            os.chmod(tmp, 0o666 & ~umask)
+        os.replace(tmp, target)
+    except BaseException:
+        try:
+            os.remove(tmp)
+        except OSError:
+            pass
+        raise
