@@ -77,6 +77,16 @@ def _keys(panel: Panel, groups: np.ndarray) -> list[Hashable]:
     return cols[0] if len(cols) == 1 else list(zip(*cols))
 
 
+def _date_axis(ax: Any, panel: Panel) -> None:
+    """Short date labels that do not run into each other on a datetime time axis."""
+    if panel.time_kind == "datetime":
+        import matplotlib.dates as mdates
+
+        locator = mdates.AutoDateLocator(maxticks=8)
+        ax.xaxis.set_major_locator(locator)
+        ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
+
+
 def _sorted_time(panel: Panel) -> np.ndarray:
     return panel.sort(panel.frame[panel.time_col].to_numpy())
 
@@ -125,6 +135,7 @@ def trajectories(
             okz = ~np.isnan(zz)
             (dash,) = ax.plot(tt[okz], zz[okz], "--", lw=1.1, color=line.get_color(), label=f"{_label(key)} {overlay}")
             dash.set_gid("overlay")
+    _date_axis(ax, panel)
     ax.set_xlabel(time)
     ax.set_ylabel(col)
     ax.set_title(f"{col}: {len(chosen)} of {panel.n_subjects} subjects"
@@ -178,6 +189,7 @@ def visit_schedule(
     ax.set_yticks(np.arange(len(chosen)))
     ax.set_yticklabels([_label(k) for k in keys], fontsize=6 if len(chosen) > 20 else 8)
     ax.set_ylim(len(chosen) - 0.5, -0.5)
+    _date_axis(ax, panel)
     ax.set_xlabel(time)
     ax.set_ylabel("subject")
 
