@@ -265,7 +265,7 @@ class Derivation:
     def from_dict(cls, doc: Any) -> "Derivation":
         """Rebuild from the plain values of :meth:`to_dict`, checking every key and type."""
         _expect(doc, dict, "", "the file must hold a JSON object")
-        _no_unknown(doc, {"format", "version", "description", "panel", "transforms"}, "")
+        _no_unknown(doc, ("format", "version", "description", "panel", "transforms"), "")
         if "format" not in doc:
             raise DerivationFileError(f"not a saved panelfx derivation: no 'format' key (expected {FORMAT!r})",
                                       path="format")
@@ -283,7 +283,7 @@ class Derivation:
         _expect(description, str, "description", "must be a string")
         panel = _required(doc, "panel", "")
         _expect(panel, dict, "panel", "must be an object with keys id, time, unit")
-        _no_unknown(panel, {"id", "time", "unit"}, "panel")
+        _no_unknown(panel, ("id", "time", "unit"), "panel")
         id_ = _required(panel, "id", "panel")
         if isinstance(id_, list):
             if not id_ or not all(isinstance(c, str) and c for c in id_):
@@ -295,16 +295,17 @@ class Derivation:
         time = _required(panel, "time", "panel")
         _expect(time, str, "panel.time", "must be a column name")
         unit = panel.get("unit")
-        if unit is not None:
-            _expect(unit, str, "panel.unit", f"must be null or one of {sorted(UNITS_NS)}")
+        if unit is not None and unit not in UNITS_NS:
+            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({unit!r})",
+                                      path="panel.unit")
         items = _required(doc, "transforms", "")
         _expect(items, list, "transforms", "must be a list")
         transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
         try:
             return cls(*transforms, id=id_, time=time, unit=unit, description=description)
         except PanelError as err:
-            where = "transforms" if isinstance(err, (MissingColumnError, ColumnExistsError)) else "panel"
-            raise DerivationFileError(str(err), path=where) from None
+            where = getattr(err, "position", None)
+            raise DerivationFileError(str(err), path="panel" if where is None else f"transforms[{where}]") from None
 
     @classmethod
     def from_json(cls, text: str | bytes) -> "Derivation":
@@ -317,6 +318,8 @@ class Derivation:
                 raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start})") from None
         if not isinstance(text, str):
             raise TypeError(f"from_json expects a str, got {type(text).__name__}")
+        if not text.strip():
+            raise DerivationFileError("the file is empty")
         try:
             doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
         except json.JSONDecodeError as err:
@@ -345,33 +348,42 @@ class Derivation:
 
 
 def _check_order(transforms: Sequence[Any], id_cols: Sequence[str], time: str) -> None:
-    """The checks of :func:`panelfx.derive.plan` that need no frame."""
+    """The checks of :func:`panelfx.derive.plan` that need no frame.  The error's
+    ``position`` is the offending transform's index (0-based, as in the file)."""
     made: dict[str, int] = {}
     keys = {*id_cols, time}
     for i, tr in enumerate(transforms):
-        if not isinstance(tr, Transform):
-            raise OptionError(f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
-                              f"(build one with e.g. panelfx.baseline('col'))")
-        for col in tr.inputs():
-            if col in keys:
-                raise OptionError(f"transform #{i + 1} ({tr.type_name}) uses the id or time column {col!r} as a value")
-            later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
-                     if isinstance(t, Transform) and col in t.outputs()]
-            if col not in made and later:
-                raise MissingColumnError(
-                    f"column {col!r} needed by transform #{i + 1} ({tr.type_name}) is made by a later transform "
-                    f"(#{later[0]}, {transforms[later[0] - 1].type_name}): reorder them",
-                    column=col, count=1,
-                )
-        for out in tr.outputs():
-            if out in keys:
-                raise ColumnExistsError(f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is the id or "
-                                        f"time column; choose another with name=", column=out, count=1)
-            if out in made:
-                raise ColumnExistsError(
-                    f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is also made by transform "
-                    f"#{made[out] + 1}; choose another with name=", column=out, count=1)
-            made[out] = i
+        try:
+            _check_one(i, tr, transforms, made, keys)
+        except PanelError as err:
+            err.position = i  # type: ignore[attr-defined]
+            raise
+
+
+def _check_one(i: int, tr: Any, transforms: Sequence[Any], made: dict[str, int], keys: set[str]) -> None:
+    if not isinstance(tr, Transform):
+        raise OptionError(f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
+                          f"(build one with e.g. panelfx.baseline('col'))")
+    for col in tr.inputs():
+        if col in keys:
+            raise OptionError(f"transform #{i + 1} ({tr.type_name}) uses the id or time column {col!r} as a value")
+        later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
+                 if isinstance(t, Transform) and col in t.outputs()]
+        if col not in made and later:
+            raise MissingColumnError(
+                f"column {col!r} needed by transform #{i + 1} ({tr.type_name}) is made by a later transform "
+                f"(#{later[0]}, {transforms[later[0] - 1].type_name}): reorder them",
+                column=col, count=1,
+            )
+    for out in tr.outputs():
+        if out in keys:
+            raise ColumnExistsError(f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is the id or "
+                                    f"time column; choose another with name=", column=out, count=1)
+        if out in made:
+            raise ColumnExistsError(
+                f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is also made by transform "
+                f"#{made[out] + 1}; choose another with name=", column=out, count=1)
+        made[out] = i
 
 
 def _unit_words(unit: str) -> str:
