@@ -246,7 +246,8 @@ class Panel:
             is_start[0] = True
             np.not_equal(codes[1:], codes[:-1], out=is_start[1:])
         self.starts = np.flatnonzero(is_start)
-        self.ends = np.append(self.starts[1:], self.n).astype(self.starts.dtype)
+        # an empty frame has no subjects: no end either
+        self.ends = np.append(self.starts[1:], self.n)[: len(self.starts)].astype(self.starts.dtype)
         self.n_subjects = len(self.starts)
         self.grp = np.cumsum(is_start) - 1
         self.pos = np.arange(self.n) - self.starts[self.grp]
