@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._panel import Panel
+from ._panel import Panel, time_ranks
 
 
 def take(values: np.ndarray, index: np.ndarray, fill: float = np.nan) -> np.ndarray:
@@ -69,19 +69,21 @@ def cumsum(p: Panel, values: np.ndarray) -> np.ndarray:
         return values.astype("float64")
     v = values.astype("float64", copy=False)
     s = _offset_cumsum(p, v)
-    # Residual of each step, computed on subject-sized numbers, then accumulated the same way.
-    step = np.empty_like(s)
-    step[0] = s[0]
-    np.subtract(s[1:], s[:-1], out=step[1:])
-    step[p.starts] = s[p.starts]
-    resid = v - step
-    return s + _offset_cumsum(p, resid)
+    # Residual of each step, computed on subject-sized numbers, then accumulated the same way
+    # (in place: a few temporaries fewer than the textbook form, same arithmetic).
+    resid = np.empty_like(s)
+    np.subtract(s[1:], s[:-1], out=resid[1:])
+    resid[p.starts] = s[p.starts]
+    np.subtract(v, resid, out=resid)
+    s += _offset_cumsum(p, resid)
+    return s
 
 
 def _offset_cumsum(p: Panel, v: np.ndarray) -> np.ndarray:
     c = np.cumsum(v)
     before = c[p.starts] - v[p.starts]  # running total just before each subject
-    return c - before[p.grp]
+    c -= before[p.grp]
+    return c
 
 
 def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
@@ -91,6 +93,9 @@ def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
     A vectorised binary search: every row bisects its own subject at once, so the loop
     runs about log2(longest subject) times.
     """
+    fast = _bisect_ranked(p, query, side)
+    if fast is not None:
+        return fast
     t = p.t
     lo = p.starts[p.grp].copy()
     hi = p.ends[p.grp].copy()
@@ -106,6 +111,59 @@ def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
         go_right &= active
         lo = np.where(go_right, mid + 1, lo)
         hi = np.where(active & ~go_right, mid, hi)
+
+
+def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
+    """:func:`bisect` as one global ``np.searchsorted`` when times are whole steps.
+
+    Subject number and time rank make one sorted int64 key (cached on the panel); each
+    query becomes its rank threshold in its own subject.  For float times the threshold
+    may be off by one rank through rounding: exact comparisons on the native times then
+    move each answer to the right row.  ``None`` when times are not whole steps.
+    """
+    cache = getattr(p, "_cache", None)
+    if cache is None or p.n == 0 or not hasattr(p, "t"):
+        return None
+    key_name = ("", "ranked time key")
+    if key_name not in cache:
+        ranks = time_ranks(p.t)
+        width = None if ranks is None else ranks[1] + 1
+        if width is None or int(p.grp[-1]).bit_length() + int(width).bit_length() > 62:
+            cache[key_name] = None
+        else:
+            key = p.grp * width
+            key += ranks[0]
+            cache[key_name] = (key, ranks[1], ranks[2], ranks[3], width)
+    got = cache[key_name]
+    if got is None:
+        return None
+    key, bound, origin, step, width = got
+    t = p.t
+    if t.dtype.kind == "f":
+        with np.errstate(invalid="ignore", over="ignore"):
+            x = query * step - origin
+        c = np.ceil(x) if side == "left" else np.floor(x) + 1
+        c = np.clip(np.nan_to_num(c, nan=0), 0, bound).astype(np.int64)  # NaN: no t >= NaN, like the loop
+    else:
+        lo_q, hi_q = origin - step, origin + bound * step
+        if lo_q < np.iinfo("int64").min or hi_q > np.iinfo("int64").max:
+            return None
+        d = np.clip(query, lo_q, hi_q) - origin
+        c = -((-d) // step) if side == "left" else d // step + 1
+        np.clip(c, 0, bound, out=c)
+    c += p.grp * width
+    j = np.searchsorted(key, c, side="left")
+    if t.dtype.kind == "f":
+        first = p.starts[p.grp]
+        last = p.ends[p.grp]
+        while True:
+            prev = t[np.maximum(j - 1, 0)]
+            back = (j > first) & ((prev >= query) if side == "left" else (prev > query))
+            here = t[np.minimum(j, p.n - 1)]
+            ahead = (j < last) & ((here < query) if side == "left" else (here <= query))
+            if not (back.any() or ahead.any()):
+                return j
+            j = j - back + ahead
 
 
 def subject_reduce(p: Panel, ufunc: np.ufunc, values: np.ndarray) -> np.ndarray:

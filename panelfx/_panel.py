@@ -115,12 +115,15 @@ _NS_STEPS = (86_400 * 10**9, 3_600 * 10**9, 60 * 10**9, 10**9, 10**6, 10**3, 1)
 _DECIMAL_SCALES = (1, 10, 100, 1000, 10_000, 100_000, 1_000_000)
 
 
-def time_ranks(t: np.ndarray) -> tuple[np.ndarray, int] | None:
+def time_ranks(t: np.ndarray) -> tuple[np.ndarray, int, int, int] | None:
     """Times as small non-negative integers in the same order (equal exactly when the times
-    are equal) and their bound, or ``None`` when no such whole-step form is found.
+    are equal), or ``None`` when no such whole-step form is found.
 
-    Integer days, whole seconds or decimals with a few digits all qualify; the sort then
-    needs one integer key instead of two.
+    Returns (ranks, bound, origin, step): ranks lie in [0, bound); a number x maps to
+    rank x * step - origin (float times, step a power of ten), a native integer time to
+    (x - origin) / step (nanosecond times, step a unit).  Integer days, whole seconds or
+    decimals with a few digits all qualify; the sort then needs one integer key instead
+    of two, and searches within subjects need one global search.
     """
     if t.dtype.kind == "f":
         if not np.isfinite(t).all():
@@ -135,8 +138,9 @@ def time_ranks(t: np.ndarray) -> tuple[np.ndarray, int] | None:
                 continue
             q = np.rint(t * s)
             if (q / s == t).all():
-                q -= np.rint(tmin * s)
-                return q.astype(np.int64), int(q.max()) + 1
+                origin = np.rint(tmin * s)
+                q -= origin
+                return q.astype(np.int64), int(q.max()) + 1, int(origin), s
         return None
     tmin, tmax = int(t.min()), int(t.max())
     if tmax - tmin >= 2**63:
@@ -147,8 +151,8 @@ def time_ranks(t: np.ndarray) -> tuple[np.ndarray, int] | None:
         if (probe % u == 0).all() and (d % u == 0).all():
             if u > 1:
                 d //= u
-            return d, (tmax - tmin) // u + 1
-    return d, tmax - tmin + 1  # pragma: no cover - u = 1 always divides
+            return d, (tmax - tmin) // u + 1, tmin, u
+    return d, tmax - tmin + 1, tmin, 1  # pragma: no cover - u = 1 always divides
 
 
 def dense_ranks(t: np.ndarray) -> tuple[np.ndarray, int]:
@@ -180,7 +184,7 @@ def sort_order(codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray
     ranks = time_ranks(t)
     if ranks is None or code_bits + max(ranks[1] - 1, 1).bit_length() + row_bits > 63:
         ranks = dense_ranks(t)
-    q, bound = ranks
+    q, bound = ranks[0], ranks[1]
     time_bits = max(bound - 1, 1).bit_length()
     if code_bits + time_bits + row_bits > 63:  # pragma: no cover - needs billions of rows
         return np.lexsort((t, codes)), None
@@ -411,7 +415,14 @@ class Panel:
 
         Keeps the column's dtype (upcast by pandas where it cannot hold a missing value).
         """
-        values = self.series(col).array
+        s = self.series(col)
+        if isinstance(s.dtype, np.dtype) and s.dtype == np.float64:
+            # Plain floats: take from the sorted copy (cached, shared with other transforms)
+            # and scatter once, instead of mapping positions back and taking from the input.
+            out = self.numeric(col)[np.maximum(source, 0)]
+            out[source < 0] = np.nan
+            return self.unsort(out)
+        values = s.array
         src = np.where(source >= 0, self.original_positions(np.maximum(source, 0)), -1)
         return pd.api.extensions.take(values, self.unsort(src), allow_fill=True)
 

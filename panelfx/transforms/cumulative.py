@@ -69,7 +69,8 @@ class Cumulative(Transform):
         breaks = np.zeros(panel.n, dtype=bool)
         if self.restart_after is not None:
             breaks = has_prev & (step > panel.span(self.restart_after, "restart_after"))
-        runs = K.Runs(panel, breaks)
+        # Without restarts the runs are the subjects: skip rebuilding their boundaries.
+        runs = K.Runs(panel, breaks) if self.restart_after is not None else panel
         linked = has_prev & ~breaks  # the interval from the previous occasion counts
         miss = np.isnan(y)
         dt = panel.duration(step)
