@@ -136,13 +136,11 @@ def read_frame(
             include_columns=list(columns) if columns is not None else None,
             column_types={c: pa.string() for c in text_columns},
         )
-        try:
-            table = pc.read_csv(path, parse_options=pc.ParseOptions(delimiter=delimiter), convert_options=convert)
-        except pa.ArrowInvalid as err:
-            message = str(err)
-            if "include_columns" in message or "not found" in message.lower():
-                raise KeyError(f"{path}: {message}") from None
-            raise
+        parse = pc.ParseOptions(delimiter=delimiter)
+        if columns is not None:  # name a missing column the way derive does
+            with pc.open_csv(path, parse_options=parse) as reader:
+                _require(reader.schema.names, columns, path)
+        table = pc.read_csv(path, parse_options=parse, convert_options=convert)
         progress.step("read", 0, table.num_rows)
     frame = table.to_pandas(date_as_object=False)
     progress.say(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}")
@@ -214,7 +212,13 @@ def write_frame(
                     progress.step("wrote", done, done + part.num_rows, table.num_rows)
                     done += part.num_rows
 
-    write_atomic(path, write)
+    existed = os.path.exists(path)
+    try:
+        write_atomic(path, write)
+    except OSError as err:
+        kept = f"{path} was left as it was" if existed else f"no {path} was made"
+        reason = " ".join(str(err.strerror or err).split()) or type(err).__name__
+        raise OSError(f"writing {path} failed ({kept}): {reason}") from err
     progress.say(f"wrote {table.num_rows:,} rows, {table.num_columns} columns to {path}")
 
 
