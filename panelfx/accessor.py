@@ -88,9 +88,9 @@ class PanelAccessor:
     def dictionary(self) -> pd.DataFrame:
         """The data dictionary recorded by ``apply``: one row per derived column, with the
         dtypes of the result (see :meth:`panelfx.Derivation.dictionary`)."""
-        from .derivation import DICTIONARY_COLUMNS
+        from .derivation import dictionary_frame
 
-        return pd.DataFrame(self.provenance["dictionary"], columns=DICTIONARY_COLUMNS)
+        return dictionary_frame(self.provenance["dictionary"])
 
 
 pd.api.extensions.register_dataframe_accessor(NAME)(PanelAccessor)

@@ -233,11 +233,7 @@ class Derivation:
                     "description": words, "past_only": only_past, "dtype": dtypes.get(name),
                     "time_unit": time_unit,
                 })
-        if not rows:
-            return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
-        table = pd.DataFrame(rows, columns=DICTIONARY_COLUMNS)
-        table["dtype"] = table["dtype"].astype(object)
-        return table
+        return dictionary_frame(rows)
 
     # -------------------------------------------------------------- saving
     def to_dict(self) -> dict[str, Any]:
@@ -384,6 +380,13 @@ def _check_one(i: int, tr: Any, transforms: Sequence[Any], made: dict[str, int],
                 f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is also made by transform "
                 f"#{made[out] + 1}; choose another with name=", column=out, count=1)
         made[out] = i
+
+
+def dictionary_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
+    """The data dictionary as a frame, from its rows (also as recorded in ``attrs``)."""
+    if not rows:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
+    return pd.DataFrame(list(rows), columns=DICTIONARY_COLUMNS)
 
 
 def _unit_words(unit: str) -> str:
