@@ -490,6 +490,43 @@ def agreement(n: int = 300, seed: int = 7, engines: tuple[str, ...] = ENGINES) -
     return report
 
 
+def per_subject_sums(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Running dose sum and trapezoid area added up subject by subject, occasion by
+    occasion, in extended precision (np.longdouble): the accuracy reference.  Loops over
+    occasion numbers (about 40), not over subjects or rows."""
+    n = len(data["id"])
+    order = np.lexsort((data["t"], data["id"]))
+    ids, t = data["id"][order], data["t"][order].astype(np.longdouble)
+    d = data["dose"][order].astype(np.longdouble)
+    start = np.ones(n, dtype=bool)
+    start[1:] = ids[1:] != ids[:-1]
+    starts = np.flatnonzero(start)
+    pos = np.arange(n) - starts[np.cumsum(start) - 1]
+    step = np.zeros(n, dtype=np.longdouble)
+    step[1:] = (t[1:] - t[:-1]) * (d[1:] + d[:-1]) / 2
+    step[start] = 0
+    total, area = d.copy(), step.copy()
+    by_pos = np.argsort(pos, kind="stable")
+    edges = np.searchsorted(pos[by_pos], np.arange(1, int(pos.max()) + 1))
+    for rows in np.split(by_pos, edges)[1:]:
+        total[rows] += total[rows - 1]
+        area[rows] += area[rows - 1]
+    out = {}
+    for k, v in (("cumulative_sum", total), ("cumulative_area", area)):
+        back = np.empty(n, dtype=np.float64)
+        back[order] = v.astype(np.float64)
+        out[k] = back
+    return out
+
+
+def relative_error(got: np.ndarray, ref: np.ndarray) -> float:
+    """Largest |got - ref| / |ref| (an exact zero must come out exactly zero)."""
+    zero = ref == 0
+    if (got[zero] != 0).any():
+        return float("inf")
+    return float(np.max(np.abs(got[~zero] - ref[~zero]) / np.abs(ref[~zero]), initial=0.0))
+
+
 def _installed(name: str) -> bool:
     import importlib.util
 
@@ -550,6 +587,9 @@ def worker(args: argparse.Namespace) -> dict[str, Any]:
             else:
                 ref = {k: np.load(os.path.join(args.data, f"ref_{k}.npy"), mmap_mode="r") for k in target}
                 out["bad"] = disagreements(got, ref)
+            if args.engine == "panelfx" and args.accuracy:
+                exact = per_subject_sums(_load(args.data))
+                out["accuracy"] = {k: relative_error(got[k], exact[k]) for k in exact if k in got}
         return out
     # warm: best of several runs, whole job first, then each transform
     out = {}
@@ -682,6 +722,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--keys", help=argparse.SUPPRESS)
     ap.add_argument("--check", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--write-ref", action="store_true", help=argparse.SUPPRESS)
+    ap.add_argument("--accuracy", action="store_true", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.worker:
         print(json.dumps(worker(args)))
@@ -717,12 +758,15 @@ def main(argv: list[str] | None = None) -> int:
             # 1. cold whole job in a fresh process, outputs checked against the floor
             for e in engines:
                 r = _spawn(args, worker=True, engine=e, mode="cold", target="job", check=True,
-                           write_ref=e == "numpy", **common)
+                           write_ref=e == "numpy", accuracy=e == "panelfx", **common)
                 if r["bad"]:
                     raise SystemExit(f"{e} disagrees with the numpy floor:\n  " + "\n  ".join(r["bad"]))
                 res[e] = {"cold": {"job": r}}
                 print(f"  {e:8s} agrees; cold job {r['seconds']:.3f} s, extra peak {r['peak'] / 2**20:.0f} MiB",
                       flush=True)
+                if "accuracy" in r:
+                    print("           largest relative error against per-subject sums in extended precision: "
+                          + ", ".join(f"{k} {v:.1e}" for k, v in r["accuracy"].items()), flush=True)
             # 2. cold single transforms, each in a fresh process
             if not args.no_cold_transforms:
                 for e in engines:
