@@ -9,11 +9,26 @@ from __future__ import annotations
 import sys
 from typing import Sequence
 
+HELP = """usage: python -m panelfx <command> [options]     (or: panelfx <command> [options])
+
+commands:
+  demo        run panelfx on the invented demo cohort: check it, derive history variables
+  check       print the structure report of a CSV or Parquet panel file (exit 1 on fatal problems)
+  apply       apply a saved derivation (JSON) to a CSV or Parquet file, write Parquet or CSV
+  dictionary  print the data dictionary of a saved derivation
+
+'python -m panelfx <command> --help' lists a command's options."""
+
 
 def main(argv: Sequence[str] | None = None) -> int:
     args = list(sys.argv[1:] if argv is None else argv)
     if not args or args[0] in ("-h", "--help"):
-        print(__doc__)
+        print(HELP)
+        return 0
+    if args[0] == "--version":
+        from . import __version__
+
+        print(f"panelfx {__version__}")
         return 0
     command, rest = args[0], args[1:]
     if command == "demo":

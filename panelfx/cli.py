@@ -21,6 +21,7 @@ of a good one.
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import os
 import sys
@@ -34,6 +35,8 @@ __all__ = ["COMMANDS", "read_frame", "write_frame"]
 
 #: Progress is reported on stderr every this many rows read or written.
 PROGRESS_ROWS = 1_000_000
+#: Progress while reading a CSV file is reported every this many bytes.
+PROGRESS_BYTES = 256 * 2**20
 #: Rows per batch when reading Parquet and per slice when writing.
 BATCH_ROWS = 65_536
 #: Findings printed by ``check`` as a table before it says how many more there are.
@@ -58,16 +61,21 @@ class _Parser(argparse.ArgumentParser):
 class Progress:
     """Rows read / written, on stderr, every :data:`PROGRESS_ROWS` rows; silent with ``quiet``."""
 
-    def __init__(self, command: str, quiet: bool) -> None:
+    def __init__(self, command: str, quiet: bool, summary: bool = True) -> None:
         self.command = command
         self.quiet = quiet
+        self.summary = summary  # also say what was read / written when it was small
 
     def say(self, text: str) -> None:
         if not self.quiet:
             print(f"panelfx {self.command}: {text}", file=sys.stderr, flush=True)
 
+    def done(self, text: str, rows: int) -> None:
+        if self.summary or rows >= PROGRESS_ROWS:
+            self.say(text)
+
     def step(self, verb: str, before: int, after: int, total: int | None = None) -> None:
-        if after // PROGRESS_ROWS > before // PROGRESS_ROWS:
+        if after // PROGRESS_ROWS > before // PROGRESS_ROWS and (total is None or after < total):
             of = f" of {total:,}" if total is not None else ""
             self.say(f"{verb} {after:,}{of} rows")
 
@@ -140,11 +148,41 @@ def read_frame(
         if columns is not None:  # name a missing column the way derive does
             with pc.open_csv(path, parse_options=parse) as reader:
                 _require(reader.schema.names, columns, path)
-        table = pc.read_csv(path, parse_options=parse, convert_options=convert)
-        progress.step("read", 0, table.num_rows)
+        # Rows are known only once parsed (types are inferred over the whole file), so progress
+        # while reading a CSV counts the bytes read from the file.
+        size = os.path.getsize(path)
+        with open(path, "rb") as raw:
+            counted = _CountingFile(raw, size, progress, path)
+            source: Any = pa.PythonFile(counted, mode="r")
+            codec = _codec(path)
+            if codec is not None:
+                source = pa.CompressedInputStream(source, codec)
+            table = pc.read_csv(source, parse_options=parse, convert_options=convert)
     frame = table.to_pandas(date_as_object=False)
-    progress.say(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}")
+    progress.done(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}", len(frame))
     return frame
+
+
+class _CountingFile(io.RawIOBase):
+    """A binary file that reports, every :data:`PROGRESS_BYTES`, how much of it has been read."""
+
+    def __init__(self, raw: Any, size: int, progress: Progress, path: str) -> None:
+        self.raw, self.size, self.progress, self.path, self.done = raw, size, progress, path, 0
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, buffer: Any) -> int:
+        n = self.raw.readinto(buffer)
+        before, self.done = self.done, self.done + (n or 0)
+        if self.done // PROGRESS_BYTES > before // PROGRESS_BYTES:
+            self.progress.say(f"read {self.done / 2**20:,.0f} of {self.size / 2**20:,.0f} MB of {self.path}")
+        return n
+
+
+def _codec(path: str) -> str | None:
+    name = path.lower()
+    return {".gz": "gzip", ".bz2": "bz2", ".zst": "zstd", ".lz4": "lz4"}.get(os.path.splitext(name)[1])
 
 
 def _require(names: Sequence[str], columns: Sequence[str], path: str) -> None:
@@ -258,7 +296,7 @@ def _check(argv: list[str]) -> int:
     parser.add_argument("--input-format", choices=["csv", "parquet"])
     parser.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
     args = parser.parse_args(argv)
-    progress = Progress("check", args.quiet)
+    progress = Progress("check", args.quiet, summary=False)
     frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys([*args.id, args.time])],
                        text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress)
     report = check(frame, id=args.id if len(args.id) > 1 else args.id[0], time=args.time,
@@ -328,7 +366,7 @@ def _dictionary(argv: list[str]) -> int:
     frame = None
     if args.input is not None:
         frame = read_frame(args.input, args.input_format, text_columns=args.text,
-                           progress=Progress("dictionary", args.quiet))
+                           progress=Progress("dictionary", args.quiet, summary=False))
     table = derivation.dictionary(frame)
     if args.csv:
         table.to_csv(sys.stdout, index=False)

@@ -202,6 +202,20 @@ def test_progress_on_stderr(files, capsys, monkeypatch):
     assert pq.ParquetFile("out.parquet").metadata.num_rows == 12
 
 
+def test_progress_reading_csv_counts_bytes(files, capsys, monkeypatch):
+    """CSV rows are known only once parsed, so reading reports bytes; compressed CSV reads too."""
+    import gzip
+
+    with open("visits.csv", "rb") as src, gzip.open("visits.csv.gz", "wb") as dst:
+        dst.write(src.read())
+    monkeypatch.setattr(cli, "PROGRESS_BYTES", 64)
+    frame = cli.read_frame("visits.csv.gz", progress=cli.Progress("apply", quiet=False))
+    pd.testing.assert_frame_equal(frame, cli.read_frame("visits.csv"))
+    lines = capsys.readouterr().err.splitlines()
+    assert lines[0].startswith("panelfx apply: read 0 of 0 MB of visits.csv.gz")
+    assert lines[-1] == "panelfx apply: read 12 rows, 4 columns from visits.csv.gz"
+
+
 def test_failure_while_writing_in_process(files, capsys, monkeypatch):
     """An error after part of the file is written: the old output stays, no temporary file."""
     assert main(["apply", "d.json", "visits.csv", "-o", "out.csv", "-q"]) == 0
@@ -306,4 +320,7 @@ def test_help_and_unknown_command(capsys):
     assert main(["apply", "--help"]) == 0
     assert "saved derivation" in capsys.readouterr().out
     assert main(["frobnicate"]) == 2
+    capsys.readouterr()
+    assert main([]) == 0 and "dictionary  print the data dictionary" in capsys.readouterr().out
+    assert main(["--version"]) == 0 and capsys.readouterr().out.startswith("panelfx ")
     assert set(cli.COMMANDS) == {"check", "apply", "dictionary"}
