@@ -422,7 +422,9 @@ class Panel:
             out = self.numeric(col)[np.maximum(source, 0)]
             out[source < 0] = np.nan
             return self.unsort(out)
-        values = s.array
+        # numpy-backed columns as ndarrays: pandas 2.2 warns (FutureWarning) when take gets
+        # the NumpyExtensionArray that .array returns for them
+        values = s.to_numpy() if isinstance(s.dtype, np.dtype) else s.array
         src = np.where(source >= 0, self.original_positions(np.maximum(source, 0)), -1)
         return pd.api.extensions.take(values, self.unsort(src), allow_fill=True)
 
