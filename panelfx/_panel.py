@@ -168,7 +168,7 @@ def dense_ranks(t: np.ndarray) -> tuple[np.ndarray, int]:
     return ranks, int(ranks.max()) + 1 if len(t) else 1
 
 
-def sort_order(codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+def sort_order(codes: np.ndarray, t: np.ndarray, *, fallback: bool = True) -> Any:
     """Stable order of rows by (subject code, time), and the codes in that order when the
     packed sort made them.
 
@@ -176,7 +176,8 @@ def sort_order(codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray
     with ``np.sort`` (about five times faster than ``np.lexsort`` on two keys; the row
     number in the low bits keeps ties in their original order).  Times that are whole
     steps rank for free; others take one argsort for their ranks.  ``np.lexsort`` only
-    when the three do not fit in 63 bits (billions of rows).
+    when the three do not fit in 63 bits (billions of rows, or codes that are raw id
+    values spread widely); with ``fallback=False`` ``None`` then.
     """
     n = len(codes)
     code_bits = int(codes.max()).bit_length()
@@ -186,8 +187,8 @@ def sort_order(codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray
         ranks = dense_ranks(t)
     q, bound = ranks[0], ranks[1]
     time_bits = max(bound - 1, 1).bit_length()
-    if code_bits + time_bits + row_bits > 63:  # pragma: no cover - needs billions of rows
-        return np.lexsort((t, codes)), None
+    if code_bits + time_bits + row_bits > 63:
+        return (np.lexsort((t, codes)), None) if fallback else None
     key = codes << time_bits
     key |= q
     del q, ranks
@@ -237,10 +238,14 @@ class Panel:
         self._extra: dict[str, Any] = {}
         self._cache: dict[tuple[str, str], np.ndarray] = {}
 
-        codes = self._subject_codes()
+        raw = self._integer_ids()
+        codes = self._subject_codes() if raw is None else raw
         t = time_to_native(frame[time], self.time_kind)
         self._check_null_time(t, codes)
-        self.order, sorted_codes = self._ordering(codes, t)
+        if raw is None:
+            self.order, sorted_codes = self._ordering(codes, t)
+        else:
+            self.order, sorted_codes = self._ordering_by_value(raw, t)
         if self.order is not None:
             codes = codes[self.order] if sorted_codes is None else sorted_codes
             t = t[self.order]
@@ -299,6 +304,57 @@ class Panel:
             combined = combined * (len(uniq) + 1) + k
         codes, _ = pd.factorize(combined, sort=False)
         return codes.astype(np.int64, copy=False)
+
+    def _integer_ids(self) -> np.ndarray | None:
+        """One id column of numpy integers, as int64 offsets from the smallest id, when they
+        fit the packed sort; ``None`` otherwise (then ids are factorised)."""
+        if len(self.id_cols) != 1 or self.n < 2:
+            return None
+        s = self.frame[self.id_cols[0]]
+        if not isinstance(s.dtype, np.dtype) or s.dtype.kind not in "iu":
+            return None
+        ids = s.to_numpy()
+        lo, hi = int(ids.min()), int(ids.max())
+        if (hi - lo).bit_length() + (self.n - 1).bit_length() > 62:
+            return None
+        return (ids - lo).astype(np.int64, copy=False) if lo else ids.astype(np.int64, copy=False)
+
+    def _ordering_by_value(self, ids: np.ndarray, t: np.ndarray) -> tuple[np.ndarray | None, np.ndarray]:
+        """:meth:`_ordering` for integer ids, without factorising them: the same order.
+
+        Rows are sorted by (id value, time, row), then the subjects are put back in order
+        of first appearance, as the factorised codes number them (one permutation of whole
+        subjects, skipped when ids already appear in increasing order).
+        """
+        step = ids[1:] - ids[:-1]
+        same = step == 0
+        times_in_order = not (t[1:][same] < t[:-1][same]).any()
+        if times_in_order and not (step < 0).any():
+            return None, ids
+        runs = int(np.count_nonzero(~same)) + 1
+        del step, same
+        packed = sort_order(ids, t, fallback=False)
+        if packed is None:  # id values too spread out to pack: number them instead
+            return self._ordering(self._subject_codes(), t)
+        order, sorted_ids = packed
+        is_start = np.empty(self.n, dtype=bool)
+        is_start[0] = True
+        np.not_equal(sorted_ids[1:], sorted_ids[:-1], out=is_start[1:])
+        del sorted_ids
+        starts = np.flatnonzero(is_start)
+        if times_in_order and runs == len(starts):
+            return None, ids  # each subject's rows were contiguous and in time order already
+        sizes = np.diff(np.append(starts, self.n))
+        first_seen = np.minimum.reduceat(order, starts)
+        if (first_seen[1:] < first_seen[:-1]).any():
+            by_first = np.argsort(first_seen)
+            new_sizes = sizes[by_first]
+            new_starts = np.cumsum(new_sizes) - new_sizes
+            rows = np.repeat(starts[by_first] - new_starts, new_sizes)
+            rows += np.arange(self.n)
+            order = order[rows]
+            sizes = new_sizes
+        return order, np.repeat(np.arange(len(starts)), sizes)
 
     def _check_null_time(self, t: np.ndarray, codes: np.ndarray) -> None:
         null = np.isnan(t) if t.dtype.kind == "f" else (t == NAT)
