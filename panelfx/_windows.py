@@ -66,13 +66,10 @@ class Bounds:
     """
 
     lo: np.ndarray
+    hi: np.ndarray
     length: np.ndarray
     end: int
     width: int  # the longest window
-
-    @property
-    def hi(self) -> np.ndarray:
-        return self.lo + self.length
 
 
 def bounds(
@@ -93,17 +90,16 @@ def bounds(
     i = np.arange(p.n)
     end = 1 if exclude_current or (span is not None and closed in ("left", "neither")) else 0
     hi = i + 1 - end
-    first = p.starts[p.grp] if p.n else i
     if occasions is not None:
-        lo = np.maximum(first, hi - occasions)
+        lo = np.maximum(p.starts[p.grp], hi - occasions)
     elif span is not None:
-        lo = K.bisect(p, _minus(p.t, span), side="left" if closed in ("both", "left") else "right")
+        lo = window_start(p, span, side="left" if closed in ("both", "left") else "right")
         # t - span can round to t for float times far from zero: such a window is empty.
         lo = np.minimum(lo, hi)
     else:
-        lo = np.minimum(first, hi)
+        lo = p.starts[p.grp]
     length = hi - lo
-    return Bounds(lo=lo, length=length, end=end, width=int(length.max()) if p.n else 0)
+    return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0)
 
 
 def _minus(t: np.ndarray, span: float | int) -> np.ndarray:
@@ -116,9 +112,60 @@ def _minus(t: np.ndarray, span: float | int) -> np.ndarray:
     return t - s
 
 
+def window_start(p: Panel, span: float | int, *, side: str) -> np.ndarray:
+    """Per row: the first row of its subject with time >= t - span (side "left") or
+    > t - span (side "right").
+
+    When every time is a whole number of some tick (whole days for dates, say) the
+    subject number and the time in ticks since the subject's first occasion make one
+    integer key that grows along the sorted rows; the queries (key - span) grow too, so
+    one stable sort of both, which merges two sorted runs in O(n), places every query
+    among the keys exactly.  Otherwise (or when that key would not fit in 64 bits) the
+    per-subject bisection of :func:`panelfx._kernels.bisect` does.
+    """
+    keyed = _tick_keys(p, span)
+    if keyed is None:
+        return K.bisect(p, _minus(p.t, span), side=side)
+    key, width = keyed
+    n = key.size
+    # Stable order puts keys equal to a query before it ("right": count keys <= query)
+    # or after it ("left": count keys < query); a query's rank minus its number is the
+    # count of keys before it, i.e. the first row of its window.
+    if side == "right":
+        order = np.argsort(np.concatenate([key, key - width]), kind="stable")
+        return np.flatnonzero(order >= n) - np.arange(n)
+    order = np.argsort(np.concatenate([key - width, key]), kind="stable")
+    return np.flatnonzero(order < n) - np.arange(n)
+
+
+def _tick_keys(p: Panel, span: float | int) -> tuple[np.ndarray, int] | None:
+    """(subject * R + ticks since the subject's first time, span in ticks), or None."""
+    t = p.t
+    if p.n == 0:
+        return None
+    if t.dtype.kind == "f":
+        if not float(span).is_integer() or not np.all(np.abs(t) <= 2.0**53) or not np.all(t == np.floor(t)):
+            return None
+        t = t.astype(np.int64)
+    span_i = int(span)
+    if int(t.max()) - int(t.min()) >= 2**62:
+        return None
+    rel = t - t[p.starts][p.grp]
+    tick = int(np.gcd(np.gcd.reduce(rel), span_i))
+    if tick > 1:
+        rel = rel // tick
+    width = span_i // tick
+    r = int(rel.max()) + width + 1  # a subject's keys and queries stay inside its own block of r
+    if r * p.n_subjects >= 2**62:
+        return None
+    return rel + p.grp.astype(np.int64) * r, width
+
+
 # ---------------------------------------------------------------------- count, sum
 def count(b: Bounds, mask: np.ndarray) -> np.ndarray:
     """Number of rows of each window where ``mask`` holds (int64, exact)."""
+    if mask.all():
+        return b.length.astype(np.int64, copy=True)
     if b.width <= DIRECT_MAX:
         return _direct(b, mask.astype(np.int64), np.add, 0).astype(np.int64)
     c = np.zeros(mask.size + 1, dtype=np.int64)
@@ -138,7 +185,12 @@ def total(p: Panel, b: Bounds, v0: np.ndarray) -> np.ndarray:
     prefix = K.cumsum(p, v0)
     top, bottom = _prefix_ends(p, b, prefix)
     out = np.where(b.length > 0, top - bottom, 0.0)
-    bound = 4 * _EPS * (np.abs(top) + np.abs(bottom))
+    # For values >= 0 the subject's running sum of |v| is the prefix sum itself.
+    if v0.size and v0.min() >= 0:
+        scale = top + p.n * _EPS * float(v0.sum())
+    else:
+        scale = _magnitude(p, b, v0)
+    bound = 8 * _EPS * scale
     redo = np.flatnonzero((bound > SUM_RTOL * np.abs(out)) & (b.length > 0))
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
@@ -156,6 +208,22 @@ def _prefix_ends(p: Panel, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray, n
         before[1:] = prefix[:-1]
         before[p.starts] = 0.0
     return prefix[np.maximum(b.hi - 1, 0)], before[b.lo]
+
+
+def _magnitude(p: Panel, b: Bounds, v: np.ndarray) -> np.ndarray:
+    """Per row: what the rounding of a window sum from prefix sums scales with.
+
+    That is the sum of |v| over the subject's rows up to the window's end (prefix sums
+    of the subject pass through every partial sum on the way), plus n * eps times the
+    sum of |v| over all rows, for the digits the running total shared by all subjects
+    leaves behind (a generous allowance: such errors grow like sqrt(n) in practice).
+    """
+    a = np.abs(v)
+    run = np.cumsum(a)
+    if p.n == 0:
+        return run
+    before = (run[p.starts] - a[p.starts])[p.grp]
+    return run[np.maximum(b.hi - 1, 0)] - before + p.n * _EPS * run[-1]
 
 
 def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -193,15 +261,15 @@ def variance(p: Panel, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.ndar
     with np.errstate(invalid="ignore", divide="ignore"):
         centre = K.subject_reduce(p, np.add, v0) / n_valid
     w = np.where(valid, y - np.where(n_valid > 0, centre, 0.0), 0.0)
+    ww = w * w
     t1, b1 = _prefix_ends(p, b, K.cumsum(p, w))
-    t2, b2 = _prefix_ends(p, b, K.cumsum(p, w * w))
+    t2, b2 = _prefix_ends(p, b, K.cumsum(p, ww))
     s1 = np.where(b.length > 0, t1 - b1, 0.0)
     s2 = np.where(b.length > 0, t2 - b2, 0.0)
     safe_cnt = np.maximum(cnt, 1)
     num = s2 - s1 * s1 / safe_cnt
-    # Rounding bound of num from the prefix sums it came from (a few ulps of each).
-    a1 = np.abs(t1) + np.abs(b1)
-    bound = 8 * _EPS * (np.abs(t2) + np.abs(b2) + np.abs(s2) + np.abs(s1) * a1 / safe_cnt)
+    # Rounding bound of num: of s2, and of s1 as it enters s1**2 / count (see _magnitude).
+    bound = 8 * _EPS * (_magnitude(p, b, ww) + np.abs(s2) + 2 * np.abs(s1) * _magnitude(p, b, w) / safe_cnt)
     with np.errstate(invalid="ignore", divide="ignore"):
         out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), np.nan)
     redo = np.flatnonzero(enough & (bound > VAR_RTOL * num))
