@@ -2,8 +2,9 @@
 
 A window is a run of consecutive sorted rows ``[lo, hi)`` inside the row's subject that
 ends at the row itself (``hi = i + 1``) or just before it (``hi = i``, when the current
-occasion is left out).  :class:`Bounds` holds ``lo`` per row and that end offset; every
-statistic here takes one.  No function loops in Python over subjects or rows.  The loops
+occasion is left out).  :class:`Bounds` holds ``lo`` and ``hi`` per row; every statistic
+here takes one.  Time windows find ``lo`` exactly (:func:`window_start`): one stable merge
+of integer keys when times are whole ticks (dates), else a per-subject bisection.  No function loops in Python over subjects or rows.  The loops
 that remain run over a handful of window offsets (short windows), over doubling levels
 (about log2 of the longest window) or over row chunks of bounded memory (median).
 
@@ -12,7 +13,10 @@ How each statistic is computed, and why:
 - count, sum, mean: for short windows (at most :data:`DIRECT_MAX` rows) the values are
   added directly, offset by offset (exact to rounding).  Longer windows take differences
   of per-subject prefix sums (:func:`panelfx._kernels.cumsum`, compensated); counts use
-  an exact integer prefix sum.  Cost O(n) plus one O(n) gather per end.
+  an exact integer prefix sum.  Cost O(n) plus one O(n) gather per end.  Each row's
+  rounding is bounded from the magnitudes the prefix sums went through; rows where that
+  bound exceeds :data:`SUM_RTOL` of the result (small windows after a huge value) are
+  added up directly instead.
 - var, std: sample variance (divisor n - 1).  Short windows: two passes over the window
   values (mean first, then squared deviations).  Longer windows: prefix sums of values
   centred by the subject's mean, so the squares stay small; each row's rounding error is
