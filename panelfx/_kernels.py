@@ -25,6 +25,10 @@ def take(values: np.ndarray, index: np.ndarray, fill: float = np.nan) -> np.ndar
 def shift_index(p: Panel, periods: int) -> np.ndarray:
     """Row ``periods`` occasions earlier in the same subject (later when negative), else -1."""
     idx = np.arange(p.n) - periods
+    if periods in (1, -1) and p.n:
+        # The usual one-step shift needs only the subject boundaries, not pos and size.
+        idx[p.starts if periods == 1 else p.ends - 1] = -1
+        return idx
     if periods >= 0:
         ok = p.pos >= periods
     else:
@@ -114,36 +118,39 @@ def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
 
 
 def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
-    """:func:`bisect` as one global ``np.searchsorted`` when times are whole steps.
+    """:func:`bisect` as one global search (a merge) when times are whole steps.
 
-    Subject number and time rank make one sorted int64 key (cached on the panel); each
-    query becomes its rank threshold in its own subject.  For float times the threshold
+    Subject number and time rank make one sorted int64 key; each query becomes its rank
+    threshold in its own subject.  For float times the threshold
     may be off by one rank through rounding: exact comparisons on the native times then
     move each answer to the right row.  ``None`` when times are not whole steps.
     """
-    cache = getattr(p, "_cache", None)
-    if cache is None or p.n == 0 or not hasattr(p, "t"):
+    if p.n == 0 or not hasattr(p, "t"):
         return None
-    key_name = ("", "ranked time key")
-    if key_name not in cache:
-        ranks = time_ranks(p.t)
-        width = None if ranks is None else ranks[1] + 1
-        if width is None or int(p.grp[-1]).bit_length() + int(width).bit_length() > 62:
-            cache[key_name] = None
-        else:
-            key = p.grp * width
-            key += ranks[0]
-            cache[key_name] = (key, ranks[1], ranks[2], ranks[3], width)
-    got = cache[key_name]
-    if got is None:
-        return None
-    key, bound, origin, step, width = got
     t = p.t
+    ranks = time_ranks(t)
+    if ranks is None:
+        return None
+    q, bound, origin, step = ranks
+    width = bound + 1
+    if int(p.grp[-1]).bit_length() + int(width).bit_length() > 62:
+        return None
+    key = p.grp * width
+    key += q
+    del q, ranks
+    exact = True
     if t.dtype.kind == "f":
         with np.errstate(invalid="ignore", over="ignore"):
             x = query * step - origin
-        c = np.ceil(x) if side == "left" else np.floor(x) + 1
-        c = np.clip(np.nan_to_num(c, nan=0), 0, bound).astype(np.int64)  # NaN: no t >= NaN, like the loop
+        c = np.ceil(x) if side == "left" else np.floor(x)
+        # Whole-number times and queries below 2**52: the arithmetic was exact, no correction.
+        exact = (step == 1 and abs(origin) < 2**52 and float(np.abs(query).max()) < 2**52
+                 and bool((np.floor(query) == query).all()))
+        if side == "right":
+            c += 1
+        np.fmax(c, 0, out=c)  # NaN becomes 0: no t >= NaN, as in the loop
+        np.minimum(c, bound, out=c)
+        c = c.astype(np.int64)
     else:
         lo_q, hi_q = origin - step, origin + bound * step
         if lo_q < np.iinfo("int64").min or hi_q > np.iinfo("int64").max:
@@ -152,8 +159,21 @@ def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
         c = -((-d) // step) if side == "left" else d // step + 1
         np.clip(c, 0, bound, out=c)
     c += p.grp * width
-    j = np.searchsorted(key, c, side="left")
-    if t.dtype.kind == "f":
+    # First key >= each query: a stable sort of queries-then-keys puts a key equal to a
+    # query after it, so a query's sorted position minus the queries before it counts the
+    # keys below it.  Both runs are sorted (queries too, usually): the stable sort merges
+    # them in O(n), about three times faster than np.searchsorted.
+    n = p.n
+    order = np.argsort(np.concatenate([c, key]), kind="stable")
+    at = np.flatnonzero(order < n)
+    at -= np.arange(n)
+    if (c[1:] >= c[:-1]).all():
+        j = at
+    else:
+        j = np.empty(n, dtype=np.int64)
+        j[order[order < n]] = at
+    del order, c
+    if not exact:
         first = p.starts[p.grp]
         last = p.ends[p.grp]
         while True:
@@ -162,8 +182,9 @@ def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
             here = t[np.minimum(j, p.n - 1)]
             ahead = (j < last) & ((here < query) if side == "left" else (here <= query))
             if not (back.any() or ahead.any()):
-                return j
+                break
             j = j - back + ahead
+    return j
 
 
 def subject_reduce(p: Panel, ufunc: np.ufunc, values: np.ndarray) -> np.ndarray:

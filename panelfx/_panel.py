@@ -10,6 +10,7 @@ caller's row order.  When the rows already come grouped by subject and in time o
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 from typing import Any, Hashable, Mapping, Sequence
 
 import numpy as np
@@ -259,13 +260,21 @@ class Panel:
         self.ends = np.append(self.starts[1:], self.n)[: len(self.starts)].astype(self.starts.dtype)
         self.n_subjects = len(self.starts)
         self.grp = np.cumsum(is_start) - 1
-        self.pos = np.arange(self.n) - self.starts[self.grp]
-        self.size = (self.ends - self.starts)[self.grp]
         self.repeated = np.zeros(self.n, dtype=bool)  # same subject and time as the row before
         if self.n > 1:
             self.repeated[1:] = (~is_start[1:]) & (self.t[1:] == self.t[:-1])
         if strict:
             self._check_duplicates()
+
+    @functools.cached_property
+    def pos(self) -> np.ndarray:
+        """Position of each sorted row within its subject (0, 1, ...); made on first use."""
+        return np.arange(self.n) - self.starts[self.grp]
+
+    @functools.cached_property
+    def size(self) -> np.ndarray:
+        """The subject's number of occasions on each sorted row; made on first use."""
+        return (self.ends - self.starts)[self.grp]
 
     # ------------------------------------------------------------------ set-up
     def _check_unit(self, unit: str | None) -> str | None:
