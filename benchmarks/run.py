@@ -190,97 +190,113 @@ class NumpyEngine(Engine):
         t = frame["t"].to_numpy()
         n = len(ids)
         tmin = t.min()
-        span = int(t.max() - tmin) + 1
-        key = (ids - ids.min()) * span + (t - tmin)
+        # Each subject's keys lie in its own block, padded so that key - 89 (the start of a
+        # 90-day window) never reaches the previous subject's block.
+        width = int(t.max() - tmin) + 1 + SPAN
+        key = (ids - ids.min()) * width + (t - tmin + SPAN)
         if n < 2 or np.all(key[1:] > key[:-1]):
             order = None
-            skey = key
         else:
             # Sort the key with the row number packed into its low bits: np.sort is about
             # twice as fast as np.argsort, and the row number makes ties stable.
             bits = max(int(n - 1).bit_length(), 1)
-            packed = np.sort((key << bits) | np.arange(n))
-            order = packed & ((1 << bits) - 1)
-            skey = packed >> bits
+            key <<= bits
+            key |= np.arange(n)
+            key.sort()
+            order = key & ((1 << bits) - 1)
+            key >>= bits
+        want = set(keys)
+        out: dict[str, np.ndarray] = {}
 
         def sort(col: str) -> np.ndarray:
             v = frame[col].to_numpy()
             return v if order is None else v[order]
 
-        ts = skey % span + tmin
+        def put(k: str, v: np.ndarray) -> None:
+            """Keep an output, in the caller's row order."""
+            if k in want:
+                if order is not None:
+                    back = np.empty_like(v)
+                    back[order] = v
+                    v = back
+                out[k] = v
+
+        ts = (key % width).astype(np.float64)  # times relative to tmin - SPAN: differences only
         start = np.empty(n, dtype=bool)
         start[:1] = True
-        np.not_equal(skey[1:] // span, skey[:-1] // span, out=start[1:])
+        np.not_equal(key[1:] // width, key[:-1] // width, out=start[1:])
         starts = np.flatnonzero(start)
         grp = np.cumsum(start) - 1
-        first = starts[grp]
-        pos = np.arange(n) - first
-        out: dict[str, np.ndarray] = {}
-        need_y = {"baseline", "change_from_baseline", "change_from_previous", "lag", "rolling_90", "rolling_3"}
-        y = sort("y") if need_y & set(keys) else None
-        if {"baseline", "change_from_baseline"} & set(keys):
-            cand = np.where(np.isnan(y), n, np.arange(n))
-            b = np.minimum.reduceat(cand, starts)[grp]
+        y = sort("y") if want - {"cumulative_sum", "cumulative_area", "time_since"} else None
+        if want & {"baseline", "change_from_baseline"}:
+            b = np.minimum.reduceat(np.where(np.isnan(y), n, np.arange(n)), starts)[grp]
             base = y[np.minimum(b, n - 1)]
             base[b == n] = np.nan
-            if "baseline" in keys:
-                out["baseline"] = base
-            if "change_from_baseline" in keys:
-                out["change_from_baseline"] = y - base
-        if {"lag", "change_from_previous"} & set(keys):
+            del b
+            put("baseline", base)
+            put("change_from_baseline", y - base)
+            del base
+        if want & {"lag", "change_from_previous"}:
             lag = np.empty(n)
             lag[1:] = y[:-1]
             lag[start] = np.nan
-            if "change_from_previous" in keys:
-                out["change_from_previous"] = y - lag
-            if "lag" in keys:
-                out["lag"] = lag
-        if {"cumulative_sum", "cumulative_area"} & set(keys):
+            put("change_from_previous", y - lag)
+            put("lag", lag)
+            del lag
+        if want & {"cumulative_sum", "cumulative_area"}:
             d = sort("dose")
-            if "cumulative_sum" in keys:
-                out["cumulative_sum"] = _segmented_cumsum(d, starts, grp)
-            if "cumulative_area" in keys:
+            if "cumulative_sum" in want:
+                put("cumulative_sum", _segmented_cumsum(d, starts, grp))
+            if "cumulative_area" in want:
                 step = np.empty(n)
-                step[1:] = (ts[1:] - ts[:-1]) * (d[1:] + d[:-1]) * 0.5
+                np.subtract(ts[1:], ts[:-1], out=step[1:])
+                step[1:] *= d[1:] + d[:-1]
+                step *= 0.5
                 step[start] = 0.0
-                out["cumulative_area"] = _segmented_cumsum(step, starts, grp)
-        if "time_since" in keys:
-            ev = sort("event")
-            last = np.maximum.accumulate(np.where(ev, np.arange(n), -1))
-            since = (ts - ts[np.maximum(last, 0)]).astype("float64")
-            since[last < first] = np.nan
-            out["time_since"] = since
-        if {"rolling_90", "rolling_3"} & set(keys):
+                put("cumulative_area", _segmented_cumsum(step, starts, grp))
+                del step
+            del d
+        if "time_since" in want:
+            last = np.maximum.accumulate(np.where(sort("event"), np.arange(n), -1))
+            since = ts - ts[np.maximum(last, 0)]
+            since[(last < 0) | (grp[np.maximum(last, 0)] != grp)] = np.nan
+            del last
+            put("time_since", since)
+            del since
+        if want & {"rolling_90", "rolling_3"}:
             ok = ~np.isnan(y)
             y0 = np.where(ok, y, 0.0)
-            if "rolling_90" in keys:
-                # First row of the window (t - 90, t]: the combined key makes this one
-                # global search; the subject's own first row bounds it.
-                j = np.maximum(np.searchsorted(skey, skey - (SPAN - 1), side="left"), first)
+            if "rolling_90" in want:
+                # First row of the window (t - 90, t]: one global search on the key.
+                j = np.searchsorted(key, key - (SPAN - 1), side="left")
                 s = _segmented_cumsum(y0, starts, grp)
                 c = np.cumsum(ok)
-                jm = np.maximum(j - 1, 0)
-                sj = np.where(j > first, s[jm], 0.0)
-                cj = np.where(j > 0, c[jm], 0)
+                # window sum = running sum here minus the running sum just before row j
+                num = s - (s[j] - y0[j])
+                del s
+                cnt = c - c[j] + ok[j]
+                del c, j
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    out["rolling_90"] = (s - sj) / (c - cj)
-            if "rolling_3" in keys:
+                    num /= cnt
+                del cnt
+                put("rolling_90", num)
+                del num
+            if "rolling_3" in want:
                 tot = y0.copy()
                 cnt = ok.astype(np.int64)
                 for k in range(1, OCCASIONS):
-                    back = pos >= k
-                    tot[k:] += np.where(back[k:], y0[:-k], 0.0)
-                    cnt[k:] += back[k:] & ok[:-k]
+                    same = grp[k:] == grp[:-k]
+                    tot[k:] += np.where(same, y0[:-k], 0.0)
+                    cnt[k:] += same & ok[:-k]
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    out["rolling_3"] = tot / cnt
+                    tot /= cnt
+                del cnt
+                put("rolling_3", tot)
+                del tot
+        del y, key, ts, grp, start
         result = frame.copy(deep=False)
         for k in keys:
-            v = out[k]
-            if order is not None:
-                back = np.empty_like(v)
-                back[order] = v
-                v = back
-            result[k] = v
+            result[k] = out.pop(k)
         return result
 
     def extract(self, result: Any, keys: list[str]) -> dict[str, np.ndarray]:
