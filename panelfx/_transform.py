@@ -78,6 +78,28 @@ def check_int(name: str, value: Any, *, nonzero: bool = False, minimum: int | No
         raise OptionError(f"{name} must be an integer >= {minimum}, got {value!r}")
 
 
+def check_bool(name: str, value: Any) -> None:
+    if not isinstance(value, bool):
+        raise OptionError(f"{name} must be True or False, got {value!r}")
+
+
 def check_name(value: Any) -> None:
     if value is not None:
         check_column_name("name", value)
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class OccasionHelper(Transform):
+    """Base of the transforms that read only the time column (occasion, gap, ...)."""
+
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_name(self.name)
+
+    def inputs(self) -> tuple[str, ...]:
+        return ()
+
+    @property
+    def past_only(self) -> bool:
+        return True

@@ -9,8 +9,7 @@ import numpy as np
 
 from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_choice, check_column_name, check_name
-from ..errors import OptionError
+from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from .baseline import baseline_index, check_rule, reference_columns, rule_words
 
 KINDS = {"difference": "change", "percent": "pct_change", "ratio": "ratio"}
@@ -43,8 +42,7 @@ class ChangeFromBaseline(Transform):
         check_name(self.name)
         check_choice("kind", self.kind, list(KINDS))
         check_rule(self.rule, self.reference)
-        if not isinstance(self.after_baseline_only, bool):
-            raise OptionError(f"after_baseline_only must be True or False, got {self.after_baseline_only!r}")
+        check_bool("after_baseline_only", self.after_baseline_only)
 
     def inputs(self) -> tuple[str, ...]:
         return (self.col, *reference_columns(self.reference))

@@ -9,8 +9,7 @@ import numpy as np
 
 from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_choice, check_column_name, check_name
-from ..errors import OptionError
+from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from .change_from_baseline import relative_change
 
 KINDS = {"difference": "diff", "percent": "pct_diff", "rate": "rate"}
@@ -30,8 +29,7 @@ class ChangeFromPrevious(Transform):
         check_column_name("col", self.col)
         check_name(self.name)
         check_choice("kind", self.kind, list(KINDS))
-        if not isinstance(self.skip_missing, bool):
-            raise OptionError(f"skip_missing must be True or False, got {self.skip_missing!r}")
+        check_bool("skip_missing", self.skip_missing)
 
     def inputs(self) -> tuple[str, ...]:
         return (self.col,)

@@ -5,17 +5,17 @@ from __future__ import annotations
 import dataclasses
 from typing import Any, Sequence
 
+import numpy as np
+
 from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_column_name, check_name
-from .time_since import check_bool
+from .._transform import Transform, check_bool, check_column_name, check_name
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class EventsSoFar(Transform):
-    """Configured :func:`events_so_far`."""
+class FlagHistory(Transform):
+    """Base of :class:`EventsSoFar` and :class:`~panelfx.transforms.ever.Ever`: counts of a flag so far."""
 
-    type_name = "events_so_far"
     col: str
     include_current: bool = True
     name: str | None = None
@@ -28,24 +28,35 @@ class EventsSoFar(Transform):
     def inputs(self) -> tuple[str, ...]:
         return (self.col,)
 
-    def outputs(self) -> tuple[str, ...]:
-        return (self.name or f"{self.col}_count",)
-
     @property
     def past_only(self) -> bool:
         return True
 
+    def _when(self) -> str:
+        return "at or before" if self.include_current else "strictly before"
+
+    def counts(self, panel: Panel) -> np.ndarray:
+        """Events at the occasions so far (sorted order); a missing flag is not an event."""
+        event, _ = panel.flags(self.col)
+        count = K.running_count(panel, event)
+        return count if self.include_current else count - event
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class EventsSoFar(FlagHistory):
+    """Configured :func:`events_so_far`."""
+
+    type_name = "events_so_far"
+
+    def outputs(self) -> tuple[str, ...]:
+        return (self.name or f"{self.col}_count",)
+
     def describe(self) -> str:
-        when = "at or before" if self.include_current else "strictly before"
-        return (f"number of the subject's occasions {when} the current one at which {self.col!r} is true "
+        return (f"number of the subject's occasions {self._when()} the current one at which {self.col!r} is true "
                 f"(a missing flag is not an event)")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        event, _ = panel.flags(self.col)
-        count = K.running_count(panel, event)
-        if not self.include_current:
-            count = count - event
-        return [panel.unsort(count)]
+        return [panel.unsort(self.counts(panel))]
 
 
 def events_so_far(col: str, *, include_current: bool = True, name: str | None = None) -> EventsSoFar:

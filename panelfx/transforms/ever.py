@@ -5,47 +5,25 @@ from __future__ import annotations
 import dataclasses
 from typing import Any, Sequence
 
-from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_column_name, check_name
-from .time_since import check_bool
+from .events_so_far import FlagHistory
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class Ever(Transform):
+class Ever(FlagHistory):
     """Configured :func:`ever`."""
 
     type_name = "ever"
-    col: str
-    include_current: bool = True
-    name: str | None = None
-
-    def __post_init__(self) -> None:
-        check_column_name("col", self.col)
-        check_name(self.name)
-        check_bool("include_current", self.include_current)
-
-    def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or f"{self.col}_ever",)
 
-    @property
-    def past_only(self) -> bool:
-        return True
-
     def describe(self) -> str:
-        when = "at or before" if self.include_current else "strictly before"
-        return (f"True once {self.col!r} has been true at an occasion {when} the current one, else False "
+        return (f"True once {self.col!r} has been true at an occasion {self._when()} the current one, else False "
                 f"(a missing flag is not an event)")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        event, _ = panel.flags(self.col)
-        count = K.running_count(panel, event)
-        if not self.include_current:
-            count = count - event
-        return [panel.unsort(count > 0)]
+        return [panel.unsort(self.counts(panel) > 0)]
 
 
 def ever(col: str, *, include_current: bool = True, name: str | None = None) -> Ever:

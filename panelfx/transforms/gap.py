@@ -9,28 +9,17 @@ import numpy as np
 
 from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_name
+from .._transform import OccasionHelper
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class Gap(Transform):
+class Gap(OccasionHelper):
     """Configured :func:`gap`."""
 
     type_name = "gap"
-    name: str | None = None
-
-    def __post_init__(self) -> None:
-        check_name(self.name)
-
-    def inputs(self) -> tuple[str, ...]:
-        return ()
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or "gap",)
-
-    @property
-    def past_only(self) -> bool:
-        return True
 
     def describe(self) -> str:
         return "time since the subject's previous occasion (missing on its first occasion)"

@@ -6,28 +6,17 @@ import dataclasses
 from typing import Any, Sequence
 
 from .._panel import Panel
-from .._transform import Transform, check_name
+from .._transform import OccasionHelper
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class Occasion(Transform):
+class Occasion(OccasionHelper):
     """Configured :func:`occasion`."""
 
     type_name = "occasion"
-    name: str | None = None
-
-    def __post_init__(self) -> None:
-        check_name(self.name)
-
-    def inputs(self) -> tuple[str, ...]:
-        return ()
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or "occasion",)
-
-    @property
-    def past_only(self) -> bool:
-        return True
 
     def describe(self) -> str:
         return "occasion number within the subject in time order (1 = first occasion)"

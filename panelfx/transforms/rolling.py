@@ -10,7 +10,7 @@ import numpy as np
 
 from .. import _windows as W
 from .._panel import Panel
-from .._transform import Transform, check_choice, check_column_name, check_int, check_name
+from .._transform import Transform, check_bool, check_choice, check_column_name, check_int, check_name
 from ..errors import OptionError
 from ._spans import check_span, span_label
 
@@ -57,8 +57,7 @@ class Rolling(Transform):
             raise OptionError(
                 f"min_valid={self.min_valid} is more than occasions={self.occasions}: every value would be missing"
             )
-        if not isinstance(self.exclude_current, bool):
-            raise OptionError(f"exclude_current must be True or False, got {self.exclude_current!r}")
+        check_bool("exclude_current", self.exclude_current)
 
     # ------------------------------------------------------------------ protocol
     def inputs(self) -> tuple[str, ...]:

@@ -9,15 +9,9 @@ import numpy as np
 
 from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_choice, check_column_name, check_name
-from ..errors import OptionError
+from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 
 WHICH = ("last", "first")
-
-
-def check_bool(name: str, value: Any) -> None:
-    if not isinstance(value, bool):
-        raise OptionError(f"{name} must be True or False, got {value!r}")
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)

@@ -6,28 +6,17 @@ import dataclasses
 from typing import Any, Sequence
 
 from .._panel import Panel
-from .._transform import Transform, check_name
+from .._transform import OccasionHelper
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class TimeSinceBaseline(Transform):
+class TimeSinceBaseline(OccasionHelper):
     """Configured :func:`time_since_baseline`."""
 
     type_name = "time_since_baseline"
-    name: str | None = None
-
-    def __post_init__(self) -> None:
-        check_name(self.name)
-
-    def inputs(self) -> tuple[str, ...]:
-        return ()
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or "time_since_baseline",)
-
-    @property
-    def past_only(self) -> bool:
-        return True
 
     def describe(self) -> str:
         return "time since the subject's first occasion (0 on that occasion)"
