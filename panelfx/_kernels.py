@@ -79,13 +79,16 @@ def cumsum(p: Panel, values: np.ndarray) -> np.ndarray:
     np.subtract(s[1:], s[:-1], out=resid[1:])
     resid[p.starts] = s[p.starts]
     np.subtract(v, resid, out=resid)
-    s += _offset_cumsum(p, resid)
+    s += _offset_cumsum(p, resid, in_place=True)
     return s
 
 
-def _offset_cumsum(p: Panel, v: np.ndarray) -> np.ndarray:
-    c = np.cumsum(v)
-    before = c[p.starts] - v[p.starts]  # running total just before each subject
+def _offset_cumsum(p: Panel, v: np.ndarray, *, in_place: bool = False) -> np.ndarray:
+    """Global running sum minus the running total before each subject (``in_place``
+    overwrites ``v``, one temporary fewer)."""
+    first = v[p.starts]
+    c = np.cumsum(v, out=v if in_place else None)
+    before = c[p.starts] - first  # running total just before each subject
     c -= before[p.grp]
     return c
 

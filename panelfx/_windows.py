@@ -188,14 +188,21 @@ def total(p: Panel, b: Bounds, v0: np.ndarray) -> np.ndarray:
         return _direct(b, v0, np.add, 0.0)
     prefix = K.cumsum(p, v0)
     top, bottom = _prefix_ends(p, b, prefix)
-    out = np.where(b.length > 0, top - bottom, 0.0)
+    del prefix  # arrays of n floats are freed or reused as soon as possible: memory peaks here
+    out = top - bottom
+    del bottom
+    out[b.length == 0] = 0.0
     # For values >= 0 the subject's running sum of |v| is the prefix sum itself.
     if v0.size and v0.min() >= 0:
-        scale = top + p.n * _EPS * float(v0.sum())
+        top += p.n * _EPS * float(v0.sum())
+        scale = top
     else:
+        del top
         scale = _magnitude(p, b, v0)
-    bound = 8 * _EPS * scale
+    scale *= 8 * _EPS
+    bound = scale
     redo = np.flatnonzero((bound > SUM_RTOL * np.abs(out)) & (b.length > 0))
+    del bound, scale
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
         nz = count(b, v0 != 0)
