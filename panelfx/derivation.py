@@ -39,8 +39,8 @@ import pandas as pd
 
 from ._panel import UNITS_NS, as_id_list, time_kind
 from ._transform import REGISTRY, Transform
-from .derive import derive
-from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
+from .derive import derive, plan
+from .errors import OptionError, PanelError
 
 __all__ = ["Derivation", "DerivationFileError", "FORMAT", "VERSION", "DICTIONARY_COLUMNS"]
 
@@ -121,7 +121,7 @@ class Derivation:
             raise OptionError(f"description must be a string, got {description!r}")
         if len(transforms) == 1 and isinstance(transforms[0], (list, tuple)):
             transforms = tuple(transforms[0])  # Derivation([t1, t2], ...) reads naturally too
-        _check_order(transforms, ids, time)
+        plan(None, transforms, ids, time)  # the order checks that need no frame
         object.__setattr__(self, "id", ids[0] if isinstance(id, str) else tuple(ids))
         object.__setattr__(self, "time", time)
         object.__setattr__(self, "unit", unit)
@@ -341,45 +341,6 @@ class Derivation:
 
 
 # ---------------------------------------------------------------------------------- helpers
-
-
-def _check_order(transforms: Sequence[Any], id_cols: Sequence[str], time: str) -> None:
-    """The checks of :func:`panelfx.derive.plan` that need no frame.  The error's
-    ``position`` is the offending transform's index (0-based, as in the file)."""
-    made: dict[str, int] = {}
-    keys = {*id_cols, time}
-    for i, tr in enumerate(transforms):
-        try:
-            _check_one(i, tr, transforms, made, keys)
-        except PanelError as err:
-            err.position = i  # type: ignore[attr-defined]
-            raise
-
-
-def _check_one(i: int, tr: Any, transforms: Sequence[Any], made: dict[str, int], keys: set[str]) -> None:
-    if not isinstance(tr, Transform):
-        raise OptionError(f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
-                          f"(build one with e.g. panelfx.baseline('col'))")
-    for col in tr.inputs():
-        if col in keys:
-            raise OptionError(f"transform #{i + 1} ({tr.type_name}) uses the id or time column {col!r} as a value")
-        later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
-                 if isinstance(t, Transform) and col in t.outputs()]
-        if col not in made and later:
-            raise MissingColumnError(
-                f"column {col!r} needed by transform #{i + 1} ({tr.type_name}) is made by a later transform "
-                f"(#{later[0]}, {transforms[later[0] - 1].type_name}): reorder them",
-                column=col, count=1,
-            )
-    for out in tr.outputs():
-        if out in keys:
-            raise ColumnExistsError(f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is the id or "
-                                    f"time column; choose another with name=", column=out, count=1)
-        if out in made:
-            raise ColumnExistsError(
-                f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is also made by transform "
-                f"#{made[out] + 1}; choose another with name=", column=out, count=1)
-        made[out] = i
 
 
 def dictionary_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:

@@ -8,42 +8,65 @@ import pandas as pd
 
 from ._panel import Panel
 from ._transform import Transform
-from .errors import ColumnExistsError, MissingColumnError, OptionError
+from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
 
-def plan(columns: Sequence[str], transforms: Sequence[Transform], id_cols: Sequence[str], time: str) -> list[str]:
+def plan(
+    columns: Sequence[str] | None, transforms: Sequence[Transform], id_cols: Sequence[str], time: str
+) -> list[str]:
     """Check, before anything is computed, that every transform finds its inputs (in the
     frame or made by an earlier transform) and that no output overwrites a column.
-    Returns the output names in order."""
-    available = set(columns)
-    made: list[str] = []
+
+    ``columns`` are the frame's columns; ``None`` when no frame is at hand yet (a saved
+    derivation): inputs that no transform makes are then assumed to come from the frame.
+    Returns the output names in order.  An error's ``position`` is the 0-based index of
+    the offending transform.
+    """
+    made: dict[str, int] = {}
     for i, tr in enumerate(transforms):
-        if not isinstance(tr, Transform):
-            raise OptionError(
-                f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
-                f"(build one with e.g. panelfx.baseline('col'))"
+        try:
+            _plan_one(i, tr, transforms, made, columns, {*id_cols, time})
+        except PanelError as err:
+            err.position = i  # type: ignore[attr-defined]
+            raise
+    return list(made)
+
+
+def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[str, int],
+              columns: Sequence[str] | None, keys: set[str]) -> None:
+    if not isinstance(tr, Transform):
+        raise OptionError(
+            f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
+            f"(build one with e.g. panelfx.baseline('col'))"
+        )
+    what = f"transform #{i + 1} ({tr.type_name})"
+    for col in tr.inputs():
+        if col in keys:
+            raise OptionError(f"{what} uses the id or time column {col!r} as a value")
+        if col in made or (columns is not None and col in columns):
+            continue
+        later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
+                 if isinstance(t, Transform) and col in t.outputs()]
+        if later:
+            raise MissingColumnError(
+                f"column {col!r} needed by {what} is made by a later transform "
+                f"(#{later[0]}, {transforms[later[0] - 1].type_name}): reorder them",
+                column=col, count=1,
             )
-        for col in tr.inputs():
-            if col not in available:
-                later = " (it is made by a later transform: reorder them)" if any(
-                    col in t.outputs() for t in transforms[i + 1:]) else ""
-                raise MissingColumnError(
-                    f"column {col!r} needed by transform #{i + 1} ({tr.type_name}) is not in the frame{later}",
-                    column=col, count=1,
-                )
-            if col in (*id_cols, time):
-                raise OptionError(f"transform #{i + 1} ({tr.type_name}) uses the id or time column {col!r} as a value")
-        for out in tr.outputs():
-            if out in available:
-                source = "made by an earlier transform" if out in made else "already in the frame"
-                raise ColumnExistsError(
-                    f"output column {out!r} of transform #{i + 1} ({tr.type_name}) is {source}; "
-                    f"choose another with name=",
-                    column=out, count=1,
-                )
-            available.add(out)
-            made.append(out)
-    return made
+        if columns is not None:
+            raise MissingColumnError(f"column {col!r} needed by {what} is not in the frame", column=col, count=1)
+    for out in tr.outputs():
+        if out in keys:
+            source = "the id or time column"
+        elif out in made:
+            source = f"also made by transform #{made[out] + 1}"
+        elif columns is not None and out in columns:
+            source = "already in the frame"
+        else:
+            made[out] = i
+            continue
+        raise ColumnExistsError(f"output column {out!r} of {what} is {source}; choose another with name=",
+                                column=out, count=1)
 
 
 def derive(
