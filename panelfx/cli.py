@@ -291,10 +291,7 @@ def _check(argv: list[str]) -> int:
                         help="allowed distance from the planned time (default a quarter of --spacing)")
     parser.add_argument("--notes", action="store_true", help="also report single-occasion subjects and row order")
     parser.add_argument("--csv", action="store_true", help="print every finding as CSV instead of a table")
-    parser.add_argument("--text", action="append", default=[], metavar="COL",
-                        help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
-    parser.add_argument("--input-format", choices=["csv", "parquet"])
-    parser.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+    _input_options(parser, quiet="no progress on stderr")
     args = parser.parse_args(argv)
     progress = Progress("check", args.quiet, summary=False)
     frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys([*args.id, args.time])],
@@ -317,17 +314,22 @@ def _check(argv: list[str]) -> int:
     return 1 if fatal else 0
 
 
+def _input_options(parser: argparse.ArgumentParser, *, quiet: str) -> None:
+    """Options every command that reads an input file shares."""
+    parser.add_argument("--text", action="append", default=[], metavar="COL",
+                        help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
+    parser.add_argument("--input-format", choices=["csv", "parquet"])
+    parser.add_argument("-q", "--quiet", action="store_true", help=quiet)
+
+
 def _apply(argv: list[str]) -> int:
     parser = _Parser(prog="panelfx apply", description="Apply a saved derivation to a CSV or Parquet file and "
                      "write the result (Parquet keeps the derivation and its data dictionary in its metadata).")
     parser.add_argument("derivation", help="saved derivation (JSON, from Derivation.save)")
     parser.add_argument("input", help="CSV or Parquet file")
     parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv")
-    parser.add_argument("--text", action="append", default=[], metavar="COL",
-                        help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
-    parser.add_argument("--input-format", choices=["csv", "parquet"])
     parser.add_argument("--output-format", choices=["csv", "parquet"])
-    parser.add_argument("-q", "--quiet", action="store_true", help="no progress or summary on stderr")
+    _input_options(parser, quiet="no progress or summary on stderr")
     args = parser.parse_args(argv)
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
@@ -357,10 +359,7 @@ def _dictionary(argv: list[str]) -> int:
     parser.add_argument("derivation", help="saved derivation (JSON)")
     parser.add_argument("input", nargs="?", help="optional CSV or Parquet file: fills in the dtypes of the result")
     parser.add_argument("--csv", action="store_true", help="print CSV instead of a table")
-    parser.add_argument("--text", action="append", default=[], metavar="COL",
-                        help="read this CSV column as text; repeatable")
-    parser.add_argument("--input-format", choices=["csv", "parquet"])
-    parser.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+    _input_options(parser, quiet="no progress on stderr")
     args = parser.parse_args(argv)
     derivation = Derivation.load(args.derivation)
     frame = None
