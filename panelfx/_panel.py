@@ -259,7 +259,8 @@ class Panel:
         # an empty frame has no subjects: no end either
         self.ends = np.append(self.starts[1:], self.n)[: len(self.starts)].astype(self.starts.dtype)
         self.n_subjects = len(self.starts)
-        self.grp = np.cumsum(is_start) - 1
+        self.grp = np.cumsum(is_start, dtype=np.int64)
+        self.grp -= 1
         self.repeated = np.zeros(self.n, dtype=bool)  # same subject and time as the row before
         if self.n > 1:
             self.repeated[1:] = (~is_start[1:]) & (self.t[1:] == self.t[:-1])
@@ -335,13 +336,15 @@ class Panel:
         of first appearance, as the factorised codes number them (one permutation of whole
         subjects, skipped when ids already appear in increasing order).
         """
-        step = ids[1:] - ids[:-1]
-        same = step == 0
-        times_in_order = not (t[1:][same] < t[:-1][same]).any()
-        if times_in_order and not (step < 0).any():
+        same = ids[1:] == ids[:-1]
+        back = t[1:] < t[:-1]
+        back &= same
+        times_in_order = not back.any()
+        del back
+        if times_in_order and not (ids[1:] < ids[:-1]).any():
             return None, ids
-        runs = int(np.count_nonzero(~same)) + 1
-        del step, same
+        runs = self.n - int(np.count_nonzero(same))
+        del same
         packed = sort_order(ids, t, fallback=False)
         if packed is None:  # id values too spread out to pack: number them instead
             return self._ordering(self._subject_codes(), t)
@@ -382,12 +385,11 @@ class Panel:
             return None, None
         # First-appearance codes are non-decreasing exactly when each subject's rows are contiguous.
         # Ties in time are left in place: they are duplicates, reported by the caller.
-        step = codes[1:] - codes[:-1]
-        if not (step < 0).any():
-            same = step == 0
-            if not (t[1:][same] < t[:-1][same]).any():
+        if not (codes[1:] < codes[:-1]).any():
+            back = t[1:] < t[:-1]
+            back &= codes[1:] == codes[:-1]
+            if not back.any():
                 return None, None
-        del step
         return sort_order(codes, t)
 
     def _check_duplicates(self) -> None:
