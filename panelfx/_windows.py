@@ -249,8 +249,8 @@ def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np
         s = b.end + d
         if s >= n:
             break
-        inside = b.length[s:] > d
-        out[s:] = np.where(inside, ufunc(out[s:], v[: n - s]), out[s:])
+        # in place where the window reaches back d rows (half the passes of np.where)
+        ufunc(out[s:], v[: n - s], out=out[s:], where=b.length[s:] > d)
     return out
 
 

@@ -62,6 +62,13 @@ class Cumulative(Transform):
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         y = panel.numeric(self.col)
+        if self.method == "sum" and self.restart_after is None:
+            # A plain running total needs no intervals (same values as the general path).
+            bad = np.isnan(y)
+            out = K.cumsum(panel, np.where(bad, 0.0, y))
+            if self.missing == "propagate":
+                out[K.last_index_upto(panel, bad) >= 0] = np.nan
+            return [panel.unsort(out)]
         prev = K.shift_index(panel, 1)
         has_prev = prev >= 0
         pi = np.maximum(prev, 0)
