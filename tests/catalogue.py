@@ -200,3 +200,14 @@ ENTRIES: list[tuple[str, Entry]] = [(t, e) for t, es in CATALOGUE.items() for e 
 
 def entry_id(item: tuple[str, Entry]) -> str:
     return item[1].label
+
+
+def renamed(tr: Transform, i: int) -> Transform:
+    """The same transform with outputs renamed so that many can share one derive."""
+    fields = {f.name for f in dataclasses.fields(tr)}
+    outs = tr.outputs()
+    if "names" in fields:
+        return dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(outs))))
+    if "name" in fields and len(outs) == 1:
+        return dataclasses.replace(tr, name=f"o{i}")
+    return tr

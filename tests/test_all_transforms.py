@@ -13,7 +13,7 @@ import dataclasses
 import json
 
 import pytest
-from catalogue import CATALOGUE, ENTRIES, NUMERIC_TIMES, Entry, numeric_time
+from catalogue import CATALOGUE, ENTRIES, NUMERIC_TIMES, Entry, numeric_time, renamed
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -110,17 +110,6 @@ def test_options_round_trip(type_name, entry):
         tr.name = "other"  # type: ignore[misc]
 
 
-def _renamed(tr: Transform, i: int) -> Transform:
-    """The same transform with outputs renamed so that many can share one derive."""
-    fields = {f.name for f in dataclasses.fields(tr)}
-    outs = tr.outputs()
-    if "names" in fields:
-        return dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(outs))))
-    if "name" in fields and len(outs) == 1:
-        return dataclasses.replace(tr, name=f"o{i}")
-    return tr
-
-
 @settings(max_examples=max(10, settings.default.max_examples // 2))
 @given(case=panels())
 def test_many_transforms_in_one_derive(case):
@@ -134,7 +123,7 @@ def test_many_transforms_in_one_derive(case):
     for i, (_, entry) in enumerate(ENTRIES):
         if set(entry.time_kinds) <= set(NUMERIC_TIMES) and not numeric_time(case):
             continue
-        tr = _renamed(entry.make(case), i)
+        tr = renamed(entry.make(case), i)
         if seen.isdisjoint(tr.outputs()):
             chain.append(tr)
             seen.update(tr.outputs())

@@ -8,7 +8,7 @@ import dataclasses
 import numpy as np
 import pandas as pd
 import pytest
-from catalogue import ENTRIES
+from catalogue import ENTRIES, renamed
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -51,20 +51,10 @@ def test_apply_equals_derive_on_generated_panels(data):
     for i, (_, entry) in enumerate(picks):
         if entry.prepare is not None:
             frame = entry.prepare(frame, case)
-        chosen.append(_renamed(entry.make(case), i))
+        chosen.append(renamed(entry.make(case), i))
     d = px.Derivation(*chosen, id=case.id, time=case.time)
     expected = px.derive(frame, *chosen, **case.keys)
     pd.testing.assert_frame_equal(d.apply(frame), expected)
-
-
-def _renamed(tr, i):
-    fields = {f.name for f in dataclasses.fields(tr)}
-    outs = tr.outputs()
-    if "names" in fields:
-        return dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(outs))))
-    if "name" in fields and len(outs) == 1:
-        return dataclasses.replace(tr, name=f"o{i}")
-    return tr
 
 
 def test_order_is_checked_up_front():
