@@ -718,6 +718,43 @@ def report(results: dict[str, Any], keys: list[str], engines: list[str], rows: i
     return "\n".join(lines)
 
 
+def targets(results: dict[str, Any], keys: list[str], rows: int) -> str:
+    """The issue's targets, as measured in this run (ratios, so that run-to-run drift cancels)."""
+    lines = ["\n## targets (this run)\n"]
+
+    def line(ok: bool, text: str) -> None:
+        lines.append(f"- [{'x' if ok else ' '}] {text}")
+
+    res = results.get("shuffled", {})
+    if "panelfx" in res and "numpy" in res:
+        w = {e: r["warm"] for e, r in res.items()}
+        px_job = w["panelfx"]["job"]["best"]
+        r = px_job / w["numpy"]["job"]["best"]
+        line(r <= 1.5, f"whole job at most 1.5x the numpy floor: {r:.2f}x")
+        if "pandas" in w:
+            r = w["pandas"]["job"]["best"] / px_job
+            line(r >= 15, f"whole job at least 15x faster than idiomatic pandas: {r:.1f}x")
+        worst = max(keys, key=lambda k: w["panelfx"][k]["best"] / w["numpy"][k]["best"])
+        r = w["panelfx"][worst]["best"] / w["numpy"][worst]["best"]
+        line(r <= 2, f"every transform within 2x of its floor kernel: worst {worst} {r:.2f}x")
+        if "pandas" in w:
+            slow = [k for k in keys if w["panelfx"][k]["best"] > w["pandas"][k]["best"]]
+            line(not slow, "no transform slower than its pandas version" + (f": {slow}" if slow else ""))
+        peak = res["panelfx"]["cold"]["job"]["peak"] / output_bytes(rows, keys)
+        line(peak <= 3, f"extra peak memory at most 3x the derived outputs: {peak:.2f}x")
+        acc = res["panelfx"]["cold"]["job"].get("accuracy")
+        if acc:
+            worst_acc = max(acc.values())
+            line(worst_acc <= 1e-12, f"running sums and areas within 1e-12 relative of per-subject sums: {worst_acc:.1e}")
+    if "sorted" in results and "panelfx" in results.get("sorted", {}) and "panelfx" in res:
+        r = res["panelfx"]["warm"]["job"]["best"] / results["sorted"]["panelfx"]["warm"]["job"]["best"]
+        line(r >= 2, f"pre-sorted input at least 2x faster than shuffled: {r:.2f}x")
+        if "numpy" in res and "numpy" in results["sorted"]:
+            f = res["numpy"]["warm"]["job"]["best"] / results["sorted"]["numpy"]["warm"]["job"]["best"]
+            lines.append(f"  (the numpy floor: {f:.2f}x)")
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--n", type=int, default=200_000, help="subjects (default 200,000: about 2M rows)")
@@ -795,6 +832,7 @@ def main(argv: list[str] | None = None) -> int:
             results[variant] = res
     order = ["panelfx", *[e for e in engines if e != "panelfx"]]
     print(report(results, keys, order, rows))
+    print(targets(results, keys, rows))
     if args.json:
         with open(args.json, "w") as f:
             json.dump({"machine": info, "n": args.n, "rows": rows, "keys": keys, "results": results}, f, indent=1)
