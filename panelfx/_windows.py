@@ -148,21 +148,24 @@ def _tick_keys(p: Panel, span: float | int) -> tuple[np.ndarray, int] | None:
     if p.n == 0:
         return None
     if t.dtype.kind == "f":
-        if not float(span).is_integer() or not np.all(np.abs(t) <= 2.0**53) or not np.all(t == np.floor(t)):
+        if not float(span).is_integer() or t.min() < -(2.0**53) or t.max() > 2.0**53 or not np.all(t == np.floor(t)):
             return None
         t = t.astype(np.int64)
     span_i = int(span)
     if int(t.max()) - int(t.min()) >= 2**62:
         return None
     rel = t - t[p.starts][p.grp]
-    tick = int(np.gcd(np.gcd.reduce(rel), span_i))
+    # The gcd over a first slice bounds the gcd over all rows: when it is 1, so is the whole.
+    tick = int(np.gcd(np.gcd.reduce(rel[:4096]), span_i))
+    if tick > 1:
+        tick = int(np.gcd(np.gcd.reduce(rel), tick))
     if tick > 1:
         rel = rel // tick
     width = span_i // tick
     r = int(rel.max()) + width + 1  # a subject's keys and queries stay inside its own block of r
     if r * p.n_subjects >= 2**62:
         return None
-    return rel + p.grp.astype(np.int64) * r, width
+    return rel + p.grp.astype(np.int64, copy=False) * r, width
 
 
 # ---------------------------------------------------------------------- count, sum
