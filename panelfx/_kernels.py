@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._panel import Panel, time_ranks
+from ._panel import Panel
 
 
 def take(values: np.ndarray, index: np.ndarray, fill: float = np.nan) -> np.ndarray:
@@ -138,24 +138,17 @@ def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
 def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
     """:func:`bisect` as one global search (a merge) when times are whole steps.
 
-    Subject number and time rank make one sorted int64 key; each query becomes its rank
+    Subject number and time rank make one sorted int64 key (made once per panel:
+    :attr:`Panel.rank_key`); each query becomes its rank
     threshold in its own subject.  For float times the threshold
     may be off by one rank through rounding: exact comparisons on the native times then
     move each answer to the right row.  ``None`` when times are not whole steps.
     """
-    if p.n == 0 or not hasattr(p, "t"):
+    cached = getattr(p, "rank_key", None)  # a Runs has none: bisect the slow way
+    if cached is None:
         return None
+    key, bound, origin, step, width = cached
     t = p.t
-    ranks = time_ranks(t)
-    if ranks is None:
-        return None
-    q, bound, origin, step = ranks
-    width = bound + 1
-    if int(p.grp[-1]).bit_length() + int(width).bit_length() > 62:
-        return None
-    key = p.grp * width
-    key += q
-    del q, ranks
     exact = True
     if t.dtype.kind == "f":
         with np.errstate(invalid="ignore", over="ignore"):

@@ -242,7 +242,7 @@ class Panel:
         raw = self._integer_ids()
         codes = self._subject_codes() if raw is None else raw
         t = time_to_native(frame[time], self.time_kind)
-        self._check_null_time(t, codes)
+        self._check_null_time(t)
         if raw is None:
             self.order, sorted_codes = self._ordering(codes, t)
         else:
@@ -271,6 +271,24 @@ class Panel:
     def pos(self) -> np.ndarray:
         """Position of each sorted row within its subject (0, 1, ...); made on first use."""
         return np.arange(self.n) - self.starts[self.grp]
+
+    @functools.cached_property
+    def rank_key(self) -> tuple[np.ndarray, int, int, int, int] | None:
+        """(subject * width + time rank, bound, origin, step, width) for whole-step times, made
+        once per panel for the searches within subjects; ``None`` when times are not whole steps
+        or the key would not fit in int64."""
+        if self.n == 0:
+            return None
+        ranks = time_ranks(self.t)
+        if ranks is None:
+            return None
+        q, bound, origin, step = ranks
+        width = bound + 1
+        if int(self.grp[-1]).bit_length() + int(width).bit_length() > 62:
+            return None
+        key = self.grp * width
+        key += q
+        return key, bound, origin, step, width
 
     @functools.cached_property
     def size(self) -> np.ndarray:
@@ -368,15 +386,13 @@ class Panel:
             sizes = new_sizes
         return order, np.repeat(np.arange(len(starts)), sizes)
 
-    def _check_null_time(self, t: np.ndarray, codes: np.ndarray) -> None:
-        null = np.isnan(t) if t.dtype.kind == "f" else (t == NAT)
+    def _check_null_time(self, t: np.ndarray) -> None:
+        null = self.is_time_missing(t)
         if null.any():
-            raise NullKeyError(
-                rows_message("missing time", self.time_col, int(null.sum()), self.ids_at(np.flatnonzero(null), sorted_=False)),
-                column=self.time_col,
-                count=int(null.sum()),
-                ids=self.ids_at(np.flatnonzero(null), sorted_=False),
-            )
+            ids = self.ids_at(np.flatnonzero(null), sorted_=False)
+            count = int(null.sum())
+            raise NullKeyError(rows_message("missing time", self.time_col, count, ids),
+                               column=self.time_col, count=count, ids=ids)
 
     def _ordering(self, codes: np.ndarray, t: np.ndarray) -> tuple[np.ndarray | None, np.ndarray | None]:
         """(order, sorted codes): order ``None`` when rows already come grouped by subject
@@ -423,9 +439,6 @@ class Panel:
     def add_column(self, name: str, values: Any) -> None:
         """Make a column computed by an earlier transform visible to later ones."""
         self._extra[name] = values
-
-    def has_column(self, name: str) -> bool:
-        return name in self._extra or name in self.frame.columns
 
     def series(self, col: str) -> pd.Series:
         """A column in the caller's row order (input or derived so far)."""
