@@ -36,6 +36,19 @@ def shift_index(p: Panel, periods: int) -> np.ndarray:
     return np.where(ok, idx, -1)
 
 
+def at_previous(p: Panel, index: np.ndarray) -> np.ndarray:
+    """Per row: ``index`` as it stood at the subject's previous occasion (-1 on its first)."""
+    prev = shift_index(p, 1)
+    return np.where(prev >= 0, index[np.maximum(prev, 0)], -1)
+
+
+def elapsed_since(p: Panel, source: np.ndarray) -> np.ndarray:
+    """Per row: the time since row ``source`` as a float duration (see ``Panel.duration``), NaN where -1."""
+    out = p.duration(p.t - p.t[np.maximum(source, 0)])
+    out[source < 0] = np.nan
+    return out
+
+
 def first_index(p: Panel, mask: np.ndarray) -> np.ndarray:
     """Per row: the subject's first row where ``mask`` holds, else -1."""
     if p.n == 0:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import functools
-from typing import Any, Hashable, Mapping, Sequence
+from typing import Any, Hashable, Sequence
 
 import numpy as np
 import pandas as pd

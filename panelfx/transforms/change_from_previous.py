@@ -51,17 +51,13 @@ class ChangeFromPrevious(Transform):
     def compute(self, panel: Panel) -> Sequence[Any]:
         y = panel.numeric(self.col)
         if self.skip_missing:
-            last = K.last_index_upto(panel, ~np.isnan(y))
-            before = K.shift_index(panel, 1)
-            prev = np.where(before >= 0, last[np.maximum(before, 0)], -1)
+            prev = K.at_previous(panel, K.last_index_upto(panel, ~np.isnan(y)))
         else:
             prev = K.shift_index(panel, 1)
         y_prev = K.take(y, prev)
         if self.kind == "rate":
-            dt = panel.duration(panel.t - panel.t[np.maximum(prev, 0)])
             with np.errstate(divide="ignore", invalid="ignore"):
-                out = (y - y_prev) / dt
-            out[prev < 0] = np.nan
+                out = (y - y_prev) / K.elapsed_since(panel, prev)
         else:
             out = relative_change(y, y_prev, self.kind)
         return [panel.unsort(out)]

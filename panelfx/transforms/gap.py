@@ -5,8 +5,6 @@ from __future__ import annotations
 import dataclasses
 from typing import Any, Sequence
 
-import numpy as np
-
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import OccasionHelper
@@ -25,10 +23,7 @@ class Gap(OccasionHelper):
         return "time since the subject's previous occasion (missing on its first occasion)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        prev = K.shift_index(panel, 1)
-        out = panel.duration(panel.t - panel.t[np.maximum(prev, 0)])
-        out[prev < 0] = np.nan
-        return [panel.unsort(out)]
+        return [panel.unsort(K.elapsed_since(panel, K.shift_index(panel, 1)))]
 
 
 def gap(*, name: str | None = None) -> Gap:

@@ -54,15 +54,12 @@ class TimeSince(Transform):
         if self.which == "last":
             src = K.last_index_upto(panel, event)
             if not self.include_current:
-                prev = K.shift_index(panel, 1)
-                src = np.where(prev >= 0, src[np.maximum(prev, 0)], -1)
+                src = K.at_previous(panel, src)
         else:
             src = K.first_index(panel, event)
             after = src <= rows if self.include_current else src < rows
             src = np.where((src >= 0) & after, src, -1)
-        out = panel.duration(panel.t - panel.t[np.maximum(src, 0)])
-        out[src < 0] = np.nan
-        return [panel.unsort(out)]
+        return [panel.unsort(K.elapsed_since(panel, src))]
 
 
 def time_since(
