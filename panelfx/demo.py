@@ -198,28 +198,19 @@ TIME = "visit_date"
 
 
 def history_transforms() -> list:
-    """The demo's history variables, as one list for a single :func:`panelfx.derive` call.
-
-    The first four are always there; the others are added when this version of panelfx
-    has them.
-    """
+    """The demo's history variables, as one list for a single :func:`panelfx.derive` call."""
     import panelfx as px
 
-    ts: list = [
+    return [
         px.baseline("sbp", rule="last_before", reference="treat_start"),
         px.change_from_baseline("sbp", rule="last_before", reference="treat_start"),
         px.change_from_previous("sbp"),
         px.lag("dose_mg"),
+        px.cumulative("dose_mg", "step", name="dose_total_mg"),  # daily dose held until the next visit
+        px.time_since("dizzy"),
+        px.rolling("sbp", "mean", span="90D"),
+        px.within_between("dose_mg"),
     ]
-    if hasattr(px, "cumulative"):  # daily dose held until the next visit: mg taken so far
-        ts.append(px.cumulative("dose_mg", "step", name="dose_total_mg"))
-    if hasattr(px, "time_since"):
-        ts.append(px.time_since("dizzy"))
-    if hasattr(px, "rolling"):
-        ts.append(px.rolling("sbp", "mean", span="90D"))
-    if hasattr(px, "within_between"):
-        ts.append(px.within_between("dose_mg"))
-    return ts
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -82,10 +82,6 @@ def spans(label: str, make: Callable[[Any], Transform], number: float, text: str
     return Entry(label=label, build=lambda numeric: make(number if numeric else text), **kw)
 
 
-def _have(*names: str) -> bool:
-    return all(hasattr(px, n) for n in names)
-
-
 def _build() -> dict[str, list[Entry]]:
     cat: dict[str, list[Entry]] = {}
     cat["baseline"] = [
@@ -116,78 +112,65 @@ def _build() -> dict[str, list[Entry]]:
         fixed(px.lag("y", 2)),
         fixed(px.lag("x", -1)),
         fixed(px.lag("flag", 1)),
+        spans("lag offset", lambda s: px.lag("y", offset=s), 10, "10D"),
+        Entry("lag offset+tolerance", lambda num: px.lag("x", offset=10 if num else "10D",
+                                                         tolerance=5 if num else "5D")),
+        Entry("lag offset, tolerance 0", lambda num: px.lag("flag", offset=3 if num else "3D",
+                                                            tolerance=0 if num else "0D")),
     ]
-    if "offset" in {f.name for f in dataclasses.fields(px.lag("y"))}:
-        cat["lag"] += [
-            spans("lag offset", lambda s: px.lag("y", offset=s), 10, "10D"),
-            Entry("lag offset+tolerance", lambda num: px.lag("x", offset=10 if num else "10D",
-                                                             tolerance=5 if num else "5D")),
-            Entry("lag offset, tolerance 0", lambda num: px.lag("flag", offset=3 if num else "3D",
-                                                                tolerance=0 if num else "0D")),
-        ]
-    if _have("cumulative"):
-        cat["cumulative"] = [
-            fixed(px.cumulative("dose"), non_decreasing=(0,)),
-            fixed(px.cumulative("dose", "step"), non_decreasing=(0,)),
-            fixed(px.cumulative("dose", "trapezoid"), non_decreasing=(0,)),
-            fixed(px.cumulative("y")),
-            fixed(px.cumulative("y", missing="propagate")),
-            fixed(px.cumulative("y", "step", missing="propagate")),
-            fixed(px.cumulative("y", "trapezoid")),
-            spans("cumulative restart", lambda s: px.cumulative("dose", "step", restart_after=s), 15, "15D"),
-        ]
-    if _have("carry_forward"):
-        cat["carry_forward"] = [
-            fixed(px.carry_forward("y")),
-            fixed(px.carry_forward("y", limit=1)),
-            spans("carry_forward max_span", lambda s: px.carry_forward("y", max_span=s), 20, "20D"),
-            Entry("carry_forward both limits", lambda num: px.carry_forward("y", limit=2, max_span=30 if num
-                                                                             else "30D")),
-            fixed(px.carry_forward("flag")),
-        ]
-    if _have("events_so_far"):
-        cat["events_so_far"] = [
-            fixed(px.events_so_far("flag"), non_decreasing=(0,)),
-            fixed(px.events_so_far("flag", include_current=False), non_decreasing=(0,)),
-            fixed(px.events_so_far("x"), non_decreasing=(0,)),
-        ]
-    if _have("ever"):
-        cat["ever"] = [
-            fixed(px.ever("flag"), non_decreasing=(0,)),
-            fixed(px.ever("flag", include_current=False), non_decreasing=(0,)),
-            fixed(px.ever("y")),
-        ]
-    if _have("time_since"):
-        cat["time_since"] = [
-            fixed(px.time_since("flag")),
-            fixed(px.time_since("flag", "first"), non_decreasing=(0,)),
-            fixed(px.time_since("flag", include_current=False)),
-            fixed(px.time_since("x", "first", include_current=False)),
-        ]
-    if _have("gap"):
-        cat["gap"] = [fixed(px.gap())]
-    if _have("occasion"):
-        cat["occasion"] = [fixed(px.occasion(), non_decreasing=(0,))]
-    if _have("time_since_baseline"):
-        cat["time_since_baseline"] = [fixed(px.time_since_baseline(), non_decreasing=(0,))]
-    if _have("within_between"):
-        cat["within_between"] = [
-            fixed(px.within_between("y"), constant=(0,)),
-            fixed(px.within_between("y", "baseline"), constant=(0,)),
-            fixed(px.within_between("x"), constant=(0,)),
-        ]
-    if _have("rolling"):
-        cat["rolling"] = [
-            fixed(px.rolling("y", occasions=3)),
-            fixed(px.rolling("y", "sum", occasions=2, exclude_current=True)),
-            fixed(px.rolling("y", "max")),
-            fixed(px.rolling("dose", "sum"), non_decreasing=(0,)),
-            spans("rolling span mean", lambda s: px.rolling("y", span=s), 20, "20D"),
-            spans("rolling span count both", lambda s: px.rolling("y", "count", span=s, closed="both"), 10, "10D"),
-            spans("rolling span std", lambda s: px.rolling("y", "std", span=s, min_valid=2), 30, "30D"),
-            spans("rolling span median left", lambda s: px.rolling("x", "median", span=s, closed="left"), 15,
-                  "15D"),
-        ]
+    cat["cumulative"] = [
+        fixed(px.cumulative("dose"), non_decreasing=(0,)),
+        fixed(px.cumulative("dose", "step"), non_decreasing=(0,)),
+        fixed(px.cumulative("dose", "trapezoid"), non_decreasing=(0,)),
+        fixed(px.cumulative("y")),
+        fixed(px.cumulative("y", missing="propagate")),
+        fixed(px.cumulative("y", "step", missing="propagate")),
+        fixed(px.cumulative("y", "trapezoid")),
+        spans("cumulative restart", lambda s: px.cumulative("dose", "step", restart_after=s), 15, "15D"),
+    ]
+    cat["carry_forward"] = [
+        fixed(px.carry_forward("y")),
+        fixed(px.carry_forward("y", limit=1)),
+        spans("carry_forward max_span", lambda s: px.carry_forward("y", max_span=s), 20, "20D"),
+        Entry("carry_forward both limits", lambda num: px.carry_forward("y", limit=2, max_span=30 if num
+                                                                         else "30D")),
+        fixed(px.carry_forward("flag")),
+    ]
+    cat["events_so_far"] = [
+        fixed(px.events_so_far("flag"), non_decreasing=(0,)),
+        fixed(px.events_so_far("flag", include_current=False), non_decreasing=(0,)),
+        fixed(px.events_so_far("x"), non_decreasing=(0,)),
+    ]
+    cat["ever"] = [
+        fixed(px.ever("flag"), non_decreasing=(0,)),
+        fixed(px.ever("flag", include_current=False), non_decreasing=(0,)),
+        fixed(px.ever("y")),
+    ]
+    cat["time_since"] = [
+        fixed(px.time_since("flag")),
+        fixed(px.time_since("flag", "first"), non_decreasing=(0,)),
+        fixed(px.time_since("flag", include_current=False)),
+        fixed(px.time_since("x", "first", include_current=False)),
+    ]
+    cat["gap"] = [fixed(px.gap())]
+    cat["occasion"] = [fixed(px.occasion(), non_decreasing=(0,))]
+    cat["time_since_baseline"] = [fixed(px.time_since_baseline(), non_decreasing=(0,))]
+    cat["within_between"] = [
+        fixed(px.within_between("y"), constant=(0,)),
+        fixed(px.within_between("y", "baseline"), constant=(0,)),
+        fixed(px.within_between("x"), constant=(0,)),
+    ]
+    cat["rolling"] = [
+        fixed(px.rolling("y", occasions=3)),
+        fixed(px.rolling("y", "sum", occasions=2, exclude_current=True)),
+        fixed(px.rolling("y", "max")),
+        fixed(px.rolling("dose", "sum"), non_decreasing=(0,)),
+        spans("rolling span mean", lambda s: px.rolling("y", span=s), 20, "20D"),
+        spans("rolling span count both", lambda s: px.rolling("y", "count", span=s, closed="both"), 10, "10D"),
+        spans("rolling span std", lambda s: px.rolling("y", "std", span=s, min_valid=2), 30, "30D"),
+        spans("rolling span median left", lambda s: px.rolling("x", "median", span=s, closed="left"), 15,
+              "15D"),
+    ]
     return cat
 
 

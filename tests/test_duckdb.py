@@ -154,7 +154,6 @@ STEP = "coalesce(lag(dose, 1) " + ORD + " * {dur}(t, lag(t, 1) " + ORD + "), 0)"
 TRAP = "coalesce((lag(dose, 1) " + ORD + " + dose) / 2 * {dur}(t, lag(t, 1) " + ORD + "), 0)"
 PRE = {"step_part": STEP, "trap_part": TRAP}
 MORE: list[tuple[Callable[[], px.Transform], str]] = [
-    # built lazily, so that a transform missing from panelfx only drops its own check
     (lambda: px.cumulative("dose"), "sum(dose) " + SO_FAR),
     # a missing value adds nothing; the running total is 0 before the first value
     (lambda: px.cumulative("y"), "coalesce(sum(y) " + SO_FAR + ", 0)"),
@@ -176,24 +175,12 @@ MORE: list[tuple[Callable[[], px.Transform], str]] = [
 ]
 
 
-def _more_checks() -> list[tuple[px.Transform, str]]:
-    out = []
-    for build, sql in MORE:
-        try:
-            out.append((build(), sql))
-        except AttributeError:  # not in panelfx (yet)
-            pass
-    return out
-
-
 @settings(max_examples=max(20, settings.default.max_examples))
 @given(case=panels())
 def test_exposure_event_and_occasion_transforms_match_duckdb(case):
     """Cumulative sums and integrals, event counts and flags, time since events, carry
     forward, occasion number, gap and time since baseline equal DuckDB window SQL."""
-    checks = _more_checks()
-    if not checks:
-        pytest.skip("none of these transforms exists yet")
+    checks = [(build(), sql) for build, sql in MORE]
     transforms = [_named(tr, i) for i, (tr, _) in enumerate(checks)]
     got = px.derive(case.frame, *transforms, **case.keys)
     want = duckdb_values(case.frame, case.id, {f"c{i}": sql for i, (_, sql) in enumerate(checks)}, pre=PRE)
@@ -207,8 +194,6 @@ def test_exposure_event_and_occasion_transforms_match_duckdb(case):
 @given(case=panels())
 def test_within_between_matches_duckdb(case):
     """Subject mean over non-missing values (DuckDB avg() OVER the subject) and the deviation from it."""
-    if not hasattr(px, "within_between"):
-        pytest.skip("within_between not in panelfx yet")
     tr = px.within_between("y", names=("b", "w"))
     got = px.derive(case.frame, tr, **case.keys)
     mean = "avg(y) OVER (PARTITION BY {ids})"
@@ -220,8 +205,6 @@ def test_within_between_matches_duckdb(case):
 def test_lag_by_time_offset_matches_duckdb_asof_join(case, days, tol_days):
     """Value as of t - offset (latest occasion at or before it, not older than the
     tolerance): DuckDB ASOF LEFT JOIN of the panel with itself on the subject and time."""
-    if "offset" not in {f.name for f in dataclasses.fields(px.lag("y"))}:
-        pytest.skip("lag by time offset not in panelfx yet")
     numeric = pd.api.types.is_numeric_dtype(case.frame["t"].dtype)
     offset, tol = (days, tol_days) if numeric else (f"{days}D", f"{tol_days}D")
     trs = [px.lag("y", offset=offset, name="a"), px.lag("y", offset=offset, tolerance=tol, name="b")]

@@ -13,7 +13,6 @@ import numpy as np
 import pandas as pd
 import pytest
 from hypothesis import find, given, settings
-from hypothesis import strategies as st
 
 import panelfx as px
 from panelfx._panel import Panel
