@@ -20,6 +20,7 @@ from . import accessor as _accessor  # registers DataFrame.px
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
+    PrecisionError,
     DuplicateOccasionError,
     MissingColumnError,
     NotConstantError,
@@ -75,6 +76,7 @@ __all__ = [
     "DuplicateOccasionError",
     "TimeTypeError",
     "ColumnTypeError",
+    "PrecisionError",
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",

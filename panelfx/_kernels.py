@@ -1,20 +1,35 @@
 """Vectorised kernels over sorted rows and subject boundaries.
 
-Every function takes arrays in (subject, time) order plus the :class:`~panelfx._panel.Panel`
-that knows the boundaries.  Index results use -1 for "no such row".  No function loops in
-Python over subjects or rows; the few loops here run over bisection or doubling steps,
-about log2(longest subject) of them.
+Every function takes arrays in (subject, time) order and the :class:`~panelfx._subjects.Subjects`
+that holds the boundaries (or runs within subjects).  Index results use -1 for "no such
+row".  No function loops in Python over subjects or rows; the loops here run over length
+classes of subjects (about log2 of the longest one).
+
+Every result of a row depends only on its own subject's rows: never on the other subjects
+or on where the subject sits among them, so results are bit-identical whatever the input
+row order.
 """
 
 from __future__ import annotations
 
+from contextvars import ContextVar
+from dataclasses import dataclass
+
 import numpy as np
 
-from ._panel import Panel
+from ._subjects import Subjects
+
+#: Powers of two used to carry running sums whose float64 value overflows (see :func:`cumsum`).
+_SCALE_DOWN = 2.0**-80
+_SCALE_UP = 2.0**80
+
+SEARCH_PATHS = ("offset", "rank", "merge", "searchsorted")
+#: Tests force a search path (key "offset" or "rank"; lookup "merge" or "searchsorted").
+FORCED_SEARCH: ContextVar[tuple[str, ...]] = ContextVar("panelfx_forced_search", default=())
 
 
 def take(values: np.ndarray, index: np.ndarray, fill: float = np.nan) -> np.ndarray:
-    """``values[index]`` with ``fill`` where index is -1."""
+    """``values[index]`` as float64 with ``fill`` where index is -1."""
     out = values[np.maximum(index, 0)]
     if out.dtype.kind != "f":
         out = out.astype("float64")
@@ -22,226 +37,202 @@ def take(values: np.ndarray, index: np.ndarray, fill: float = np.nan) -> np.ndar
     return out
 
 
-def shift_index(p: Panel, periods: int) -> np.ndarray:
+def shift_index(s: Subjects, periods: int) -> np.ndarray:
     """Row ``periods`` occasions earlier in the same subject (later when negative), else -1."""
-    idx = np.arange(p.n) - periods
-    if periods in (1, -1) and p.n:
+    idx = np.arange(s.n) - periods
+    if periods in (1, -1) and s.n:
         # The usual one-step shift needs only the subject boundaries, not pos and size.
-        idx[p.starts if periods == 1 else p.ends - 1] = -1
+        idx[s.starts if periods == 1 else s.ends - 1] = -1
         return idx
-    if periods >= 0:
-        ok = p.pos >= periods
-    else:
-        ok = p.pos - periods < p.size
+    ok = s.pos >= periods if periods >= 0 else s.pos - periods < s.size
     return np.where(ok, idx, -1)
 
 
-def at_previous(p: Panel, index: np.ndarray) -> np.ndarray:
+def at_previous(s: Subjects, index: np.ndarray) -> np.ndarray:
     """Per row: ``index`` as it stood at the subject's previous occasion (-1 on its first)."""
-    prev = shift_index(p, 1)
+    prev = shift_index(s, 1)
     return np.where(prev >= 0, index[np.maximum(prev, 0)], -1)
 
 
-def elapsed_since(p: Panel, source: np.ndarray) -> np.ndarray:
-    """Per row: the time since row ``source`` as a float duration (see ``Panel.duration``), NaN where -1."""
-    out = p.duration(p.t - p.t[np.maximum(source, 0)])
-    out[source < 0] = np.nan
-    return out
-
-
-def first_index(p: Panel, mask: np.ndarray) -> np.ndarray:
+def first_index(s: Subjects, mask: np.ndarray) -> np.ndarray:
     """Per row: the subject's first row where ``mask`` holds, else -1."""
-    if p.n == 0:
+    if s.n == 0:
         return np.empty(0, dtype=np.int64)
-    cand = np.where(mask, np.arange(p.n), p.n)
-    first = np.minimum.reduceat(cand, p.starts)
-    first = np.where(first < p.n, first, -1)
-    return first[p.grp]
+    cand = np.where(mask, np.arange(s.n), s.n)
+    first = np.minimum.reduceat(cand, s.starts)
+    return np.where(first < s.n, first, -1)[s.grp]
 
 
-def last_index_upto(p: Panel, mask: np.ndarray) -> np.ndarray:
+def last_index_upto(s: Subjects, mask: np.ndarray) -> np.ndarray:
     """Per row: the latest row at or before it, in the same subject, where ``mask`` holds, else -1."""
-    cand = np.where(mask, np.arange(p.n), -1)
-    last = np.maximum.accumulate(cand) if p.n else cand
-    return np.where(last >= p.starts[p.grp], last, -1)
+    cand = np.where(mask, np.arange(s.n), -1)
+    last = np.maximum.accumulate(cand) if s.n else cand
+    return np.where(last >= s.first, last, -1)
 
 
-def last_index_in_subject(p: Panel, mask: np.ndarray) -> np.ndarray:
+def last_index_in_subject(s: Subjects, mask: np.ndarray) -> np.ndarray:
     """Per row: the subject's last row where ``mask`` holds, else -1."""
-    if p.n == 0:
+    if s.n == 0:
         return np.empty(0, dtype=np.int64)
-    cand = np.where(mask, np.arange(p.n), -1)
-    last = np.maximum.reduceat(cand, p.starts)
-    return last[p.grp]
+    cand = np.where(mask, np.arange(s.n), -1)
+    return np.maximum.reduceat(cand, s.starts)[s.grp]
 
 
-def cumsum(p: Panel, values: np.ndarray) -> np.ndarray:
-    """Running sum within subject (NaN must already be replaced), as accurate as a
-    per-subject running sum.
-
-    One global cumulative sum serves all subjects, but with each subject's total
-    subtracted at the start of the next one, so the running total returns to about zero
-    at every subject instead of growing with the row count (a global sum minus offsets
-    loses digits as the grand total grows).  What is left at a subject's start is a drift
-    of rounding errors; a subject whose drift is not negligible next to its own values
-    (a subject of tiny values after huge ones) is recomputed exactly by a per-subject
-    doubling scan, on its rows only.
-    """
-    v = values.astype("float64", copy=False)
-    if p.n == 0 or not np.isfinite(v).all():
-        return segment_scan(p, v, np.arange(p.n))
-    totals = np.add.reduceat(v, p.starts)
-    w = v.copy()
-    w[p.starts[1:]] -= totals[:-1]
-    c = np.cumsum(w, out=w)
-    drift = c[p.starts] - v[p.starts]
-    c -= drift[p.grp]
-    size = np.add.reduceat(np.abs(v), p.starts)
-    # Rounding at a drift d costs about eps * d: beyond 64 times the subject's own scale it
-    # would show next to a per-subject sum (all-zero subjects with any drift go this way too).
-    risky = np.abs(drift) > 64 * size
-    if risky.any():
-        rows = np.flatnonzero(risky[p.grp])
-        c[rows] = segment_scan(p, v, rows)
-    return c
-
-
-def segment_scan(p: Panel, v: np.ndarray, rows: np.ndarray) -> np.ndarray:
-    """Running sums within subject of ``v[rows]`` (``rows``: whole subjects, in order), by
-    doubling: after the step of width d every row holds the sum of its last 2d values, so
-    about log2(longest subject) vectorised steps suffice and no subject touches another."""
-    out = v[rows].astype("float64", copy=True)
-    pos = p.pos[rows]
-    d = 1
-    longest = int(pos.max()) + 1 if len(rows) else 0
-    while d < longest:
-        reach = pos[d:] >= d
-        out[d:] = np.where(reach, out[d:] + out[:-d], out[d:])
-        d *= 2
-    return out
-
-
-def bisect(p: Panel, query: np.ndarray, *, side: str = "left") -> np.ndarray:
-    """Per row i: the first row j of i's subject with ``t[j] >= query[i]`` (side='left')
-    or ``t[j] > query[i]`` (side='right'); the subject's end when there is none.
-
-    A vectorised binary search: every row bisects its own subject at once, so the loop
-    runs about log2(longest subject) times.
-    """
-    fast = _bisect_ranked(p, query, side)
-    if fast is not None:
-        return fast
-    t = p.t
-    lo = p.starts[p.grp].copy()
-    hi = p.ends[p.grp].copy()
-    if p.n == 0:
-        return lo
-    while True:
-        active = lo < hi
-        if not active.any():
-            return lo
-        mid = (lo + hi) >> 1
-        tm = t[np.minimum(mid, p.n - 1)]
-        go_right = (tm < query) if side == "left" else (tm <= query)
-        go_right &= active
-        lo = np.where(go_right, mid + 1, lo)
-        hi = np.where(active & ~go_right, mid, hi)
-
-
-def _bisect_ranked(p: Panel, query: np.ndarray, side: str) -> np.ndarray | None:
-    """:func:`bisect` as one global search (a merge) when times are whole steps.
-
-    Subject number and time rank make one sorted int64 key (made once per panel:
-    :attr:`Panel.rank_key`); each query becomes its rank
-    threshold in its own subject.  For float times the threshold
-    may be off by one rank through rounding: exact comparisons on the native times then
-    move each answer to the right row.  ``None`` when times are not whole steps.
-    """
-    cached = getattr(p, "rank_key", None)  # a Runs has none: bisect the slow way
-    if cached is None:
-        return None
-    key, bound, origin, step, width = cached
-    t = p.t
-    exact = True
-    if t.dtype.kind == "f":
-        with np.errstate(invalid="ignore", over="ignore"):
-            x = query * step - origin
-        c = np.ceil(x) if side == "left" else np.floor(x)
-        # Whole-number times and queries below 2**52: the arithmetic was exact, no correction.
-        exact = (step == 1 and abs(origin) < 2**52 and float(np.abs(query).max()) < 2**52
-                 and bool((np.floor(query) == query).all()))
-        if side == "right":
-            c += 1
-        np.fmax(c, 0, out=c)  # NaN becomes 0: no t >= NaN, as in the loop
-        np.minimum(c, bound, out=c)
-        c = c.astype(np.int64)
-    else:
-        lo_q, hi_q = origin - step, origin + bound * step
-        if lo_q < np.iinfo("int64").min or hi_q > np.iinfo("int64").max:
-            return None
-        d = np.clip(query, lo_q, hi_q) - origin
-        c = -((-d) // step) if side == "left" else d // step + 1
-        np.clip(c, 0, bound, out=c)
-    c += p.grp * width
-    # First key >= each query: a stable sort of queries-then-keys puts a key equal to a
-    # query after it, so a query's sorted position minus the queries before it counts the
-    # keys below it.  Both runs are sorted (queries too, usually): the stable sort merges
-    # them in O(n), about three times faster than np.searchsorted.
-    n = p.n
-    order = np.argsort(np.concatenate([c, key]), kind="stable")
-    at = np.flatnonzero(order < n)
-    at -= np.arange(n)
-    if (c[1:] >= c[:-1]).all():
-        j = at
-    else:
-        j = np.empty(n, dtype=np.int64)
-        j[order[order < n]] = at
-    del order, c
-    if not exact:
-        first = p.starts[p.grp]
-        last = p.ends[p.grp]
-        while True:
-            prev = t[np.maximum(j - 1, 0)]
-            back = (j > first) & ((prev >= query) if side == "left" else (prev > query))
-            here = t[np.minimum(j, p.n - 1)]
-            ahead = (j < last) & ((here < query) if side == "left" else (here <= query))
-            if not (back.any() or ahead.any()):
-                break
-            j = j - back + ahead
-    return j
-
-
-def subject_reduce(p: Panel, ufunc: np.ufunc, values: np.ndarray) -> np.ndarray:
-    """Per-subject reduction (e.g. ``np.add``) broadcast back to every row."""
-    if p.n == 0:
-        return values
-    return ufunc.reduceat(values, p.starts)[p.grp]
-
-
-class Runs:
-    """Stretches of consecutive rows inside subjects, e.g. exposure restarted after a long gap.
-
-    Carries the same boundary attributes as the Panel (``n``, ``starts``, ``ends``,
-    ``grp``, ``pos``, ``size``), so :func:`cumsum`, :func:`first_index`,
-    :func:`last_index_upto`, :func:`shift_index` and :func:`subject_reduce` work per run
-    when given one in place of the panel.
-    """
-
-    def __init__(self, p: Panel, breaks: np.ndarray) -> None:
-        is_start = (p.pos == 0) | breaks
-        self.n = p.n
-        self.starts = np.flatnonzero(is_start)
-        self.ends = np.append(self.starts[1:], p.n)[: len(self.starts)].astype(self.starts.dtype)
-        self.grp = np.cumsum(is_start) - 1
-        self.pos = np.arange(p.n) - self.starts[self.grp] if p.n else np.zeros(0, dtype=np.int64)
-        self.size = (self.ends - self.starts)[self.grp]
-
-
-def running_count(p: Panel, mask: np.ndarray) -> np.ndarray:
+def running_count(s: Subjects, mask: np.ndarray) -> np.ndarray:
     """Per row: how many rows at or before it, in the same subject, satisfy ``mask`` (int64, exact)."""
-    if p.n == 0:
+    if s.n == 0:
         return np.zeros(0, dtype=np.int64)
     m = mask.astype(np.int64)
     c = np.cumsum(m)
-    before = c[p.starts] - m[p.starts]
-    return c - before[p.grp]
+    before = c[s.starts] - m[s.starts]
+    return c - before[s.grp]
+
+
+# ---------------------------------------------------------------------- running sums
+def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
+    """Running sum within subject: bit for bit v1, v1 + v2, (v1 + v2) + v3, ... in float64.
+
+    Sequential addition in time order, exactly as a loop over one subject's rows would
+    do it, so a subject's sums never depend on other subjects or on the row order.
+    Subjects are laid out as columns of a matrix (one matrix per length class, padding at
+    most doubles the cells) and summed down the columns by ``np.cumsum(axis=0)``: one
+    vectorised pass per length class.
+
+    Overflow: where a running sum overflows float64 although every value added is finite,
+    the subject's later sums are carried scaled by 2**-80 and scaled back, so a later sum
+    that float64 can hold is returned (inf only where the sum itself is beyond it).
+    """
+    v = values.astype(np.float64, copy=False)
+    with np.errstate(over="ignore", invalid="ignore"):  # IEEE results; overflow is mended below
+        out = _grid_cumsum(s, v)
+    if s.n and not np.isfinite(out).all():
+        _rescue_overflow(s, v, out)
+    return out
+
+
+def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
+    out = np.empty(s.n)
+    if s.n == 0:
+        return out
+    lengths = s.lengths
+    if int(lengths.max()) == 1:
+        out[:] = v
+        return out
+    # Length class of each subject: ceil(log2(length)); one matrix per class.
+    cls = np.frexp(np.maximum(lengths - 1, 0))[1].astype(np.int8)
+    n_cls = int(cls.max()) + 1
+    by_subject = np.argsort(cls, kind="stable")
+    sub_counts = np.bincount(cls, minlength=n_cls)
+    column = np.empty(len(lengths), dtype=np.int64)
+    column[by_subject] = np.arange(len(lengths)) - np.repeat(np.cumsum(sub_counts) - sub_counts, sub_counts)
+    row_cls = cls[s.grp]
+    by_row = np.argsort(row_cls, kind="stable")
+    row_counts = np.bincount(row_cls, minlength=n_cls)
+    pos = s.pos
+    at = 0
+    for k in range(n_cls):
+        if row_counts[k] == 0:
+            continue
+        rows = by_row[at: at + row_counts[k]]
+        at += row_counts[k]
+        if k == 0:  # subjects of one row
+            out[rows] = v[rows]
+            continue
+        p = pos[rows]
+        c = column[s.grp[rows]]
+        grid = np.zeros((int(p.max()) + 1, int(sub_counts[k])))
+        grid[p, c] = v[rows]
+        np.cumsum(grid, axis=0, out=grid)
+        out[rows] = grid[p, c]
+    return out
+
+
+def _rescue_overflow(s: Subjects, v: np.ndarray, out: np.ndarray) -> None:
+    """Recompute, scaled, the rows whose running sum overflowed while their values were finite."""
+    bad_value = running_count(s, ~np.isfinite(v)) > 0
+    overflow = ~np.isfinite(out) & ~bad_value
+    if not overflow.any():
+        return
+    rows = np.flatnonzero(np.isin(s.grp, np.unique(s.grp[overflow])))
+    sub = Subjects.from_codes(s.grp[rows])
+    with np.errstate(over="ignore"):
+        scaled = _grid_cumsum(sub, v[rows] * _SCALE_DOWN) * _SCALE_UP
+    redo = overflow[rows]
+    out[rows[redo]] = scaled[redo]
+
+
+# ---------------------------------------------------------------------- searches within subjects
+@dataclass(frozen=True, eq=False)
+class SearchKey:
+    """One int64 key that grows along the sorted rows: subject block, then time.
+
+    ``mode`` "offset": block * width + (time key - the subject's first time key), when that
+    fits in 62 bits; "rank": block * width + the dense rank of the time key among all rows
+    (always fits).  Queries are mapped to the same scale by :func:`first_at_or_after`.
+    """
+
+    mode: str
+    key: np.ndarray
+    width: int
+    distinct: np.ndarray | None  # rank mode: the distinct time keys, sorted
+
+
+def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
+    """The search key of rows whose time key (int64, sorting like the times) is ``tkey``."""
+    forced = FORCED_SEARCH.get()
+    if s.n and "rank" not in forced:
+        first = tkey[s.first]
+        rel = tkey - first  # within subject: no overflow, the time axis checks the range
+        width = int(rel.max()) + 2  # room for "after the subject's last time"
+        if width.bit_length() + max(s.count, 1).bit_length() <= 62:
+            rel += s.grp * width
+            return SearchKey("offset", rel, width, None)
+    distinct = np.unique(tkey)
+    width = len(distinct) + 1
+    key = np.searchsorted(distinct, tkey).astype(np.int64)
+    key += s.grp * width
+    return SearchKey("rank", key, width, distinct)
+
+
+def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarray,
+                      grp: np.ndarray | None = None) -> np.ndarray:
+    """Per query i in subject ``grp[i]`` (default: row i's own subject): the first row j of that
+    subject with ``tkey[j] >= q[i]``, or the subject's end when there is none.  Exact: integer
+    comparisons only."""
+    g = s.grp if grp is None else grp
+    if len(q) == 0:
+        return np.zeros(0, dtype=np.int64)
+    if sk.mode == "offset":
+        first = tkey[s.starts[g]]
+        last = tkey[s.ends[g] - 1]
+        over = q > last
+        rel = np.maximum(q, first)
+        rel -= first
+        rel[over] = sk.width - 1
+    else:
+        assert sk.distinct is not None
+        rel = np.searchsorted(sk.distinct, q, side="left").astype(np.int64)
+    rel += g * sk.width
+    return _lookup(sk.key, rel)
+
+
+def _lookup(key: np.ndarray, query: np.ndarray) -> np.ndarray:
+    """First position of the sorted ``key`` >= each query (``np.searchsorted`` side left).
+
+    When the queries are sorted too, one stable sort of queries-then-keys merges the two
+    runs in O(n), about three times faster than a binary search per query: a key equal to
+    a query lands after it, so a query's rank minus the queries before it counts the keys
+    below it.
+    """
+    forced = FORCED_SEARCH.get()
+    m = len(query)
+    if "searchsorted" in forced or ("merge" not in forced and (query[1:] < query[:-1]).any()):
+        return np.searchsorted(key, query, side="left")
+    order = np.argsort(np.concatenate([query, key]), kind="stable")
+    at = np.flatnonzero(order < m)
+    at -= np.arange(m)
+    if (query[1:] >= query[:-1]).all():
+        return at
+    out = np.empty(m, dtype=np.int64)
+    out[order[order < m]] = at
+    return out

@@ -38,12 +38,15 @@ Infinite values follow IEEE arithmetic: a sum holding +inf is +inf, one holding 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from fractions import Fraction
 from typing import Callable
 
 import numpy as np
 
 from . import _kernels as K
-from ._panel import NAT, Panel
+from ._kernels import _SCALE_DOWN, _SCALE_UP
+from ._panel import Panel
+from ._subjects import Subjects
 
 #: Windows of at most this many rows are summed directly, offset by offset.
 DIRECT_MAX = 4
@@ -80,7 +83,7 @@ def bounds(
     p: Panel,
     *,
     occasions: int | None = None,
-    span: float | int | None = None,
+    span: Fraction | float | None = None,
     closed: str = "right",
     exclude_current: bool = False,
 ) -> Bounds:
@@ -91,81 +94,20 @@ def bounds(
     [t - span, t], "left" [t - span, t) and "neither" (t - span, t).  Times are unique
     within a subject, so an open right end simply leaves the current occasion out.
     """
+    s = p.subjects
     i = np.arange(p.n)
     end = 1 if exclude_current or (span is not None and closed in ("left", "neither")) else 0
     hi = i + 1 - end
     if occasions is not None:
-        lo = np.maximum(p.starts[p.grp], hi - occasions)
+        lo = np.maximum(s.first, hi - occasions)
     elif span is not None:
-        lo = window_start(p, span, side="left" if closed in ("both", "left") else "right")
-        # t - span can round to t for float times far from zero: such a window is empty.
+        # first occasion at or after t - span ([ closed left end) or after it (open)
+        lo = p.first_at_or_after(p.axis.back(span, strict=closed not in ("both", "left")))
         lo = np.minimum(lo, hi)
     else:
-        lo = p.starts[p.grp]
+        lo = s.first
     length = hi - lo
     return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0)
-
-
-def _minus(t: np.ndarray, span: float | int) -> np.ndarray:
-    """t - span, exact for integer (nanosecond) times and saturating instead of wrapping."""
-    if t.dtype.kind == "f":
-        return t - float(span)
-    s = np.int64(span)
-    if t.size and t.min() < NAT + 1 + s:
-        return np.where(t < NAT + 1 + s, NAT + 1, t - s)
-    return t - s
-
-
-def window_start(p: Panel, span: float | int, *, side: str) -> np.ndarray:
-    """Per row: the first row of its subject with time >= t - span (side "left") or
-    > t - span (side "right").
-
-    When every time is a whole number of some tick (whole days for dates, say) the
-    subject number and the time in ticks since the subject's first occasion make one
-    integer key that grows along the sorted rows; the queries (key - span) grow too, so
-    one stable sort of both, which merges two sorted runs in O(n), places every query
-    among the keys exactly.  Otherwise (or when that key would not fit in 64 bits) the
-    per-subject bisection of :func:`panelfx._kernels.bisect` does.
-    """
-    keyed = _tick_keys(p, span)
-    if keyed is None:
-        return K.bisect(p, _minus(p.t, span), side=side)
-    key, width = keyed
-    n = key.size
-    # Stable order puts keys equal to a query before it ("right": count keys <= query)
-    # or after it ("left": count keys < query); a query's rank minus its number is the
-    # count of keys before it, i.e. the first row of its window.
-    if side == "right":
-        order = np.argsort(np.concatenate([key, key - width]), kind="stable")
-        return np.flatnonzero(order >= n) - np.arange(n)
-    order = np.argsort(np.concatenate([key - width, key]), kind="stable")
-    return np.flatnonzero(order < n) - np.arange(n)
-
-
-def _tick_keys(p: Panel, span: float | int) -> tuple[np.ndarray, int] | None:
-    """(subject * R + ticks since the subject's first time, span in ticks), or None."""
-    t = p.t
-    if p.n == 0:
-        return None
-    if t.dtype.kind == "f":
-        if not float(span).is_integer() or t.min() < -(2.0**53) or t.max() > 2.0**53 or not np.all(t == np.floor(t)):
-            return None
-        t = t.astype(np.int64)
-    span_i = int(span)
-    if int(t.max()) - int(t.min()) >= 2**62:
-        return None
-    rel = t - t[p.starts][p.grp]
-    # The gcd over a first slice bounds the gcd over all rows: when it is 1, so is the whole.
-    tick = int(np.gcd(np.gcd.reduce(rel[:4096]), span_i))
-    if tick > 1:
-        tick = int(np.gcd(np.gcd.reduce(rel), tick))
-    if tick > 1:
-        rel = rel // tick
-    width = span_i // tick
-    r = int(rel.max()) + width + 1  # a subject's keys and queries stay inside its own block of r
-    if r * p.n_subjects >= 2**62:
-        return None
-    return rel + p.grp.astype(np.int64, copy=False) * r, width
 
 
 # ---------------------------------------------------------------------- count, sum
@@ -180,32 +122,30 @@ def count(b: Bounds, mask: np.ndarray) -> np.ndarray:
     return c[b.hi] - c[b.lo]
 
 
-def total(p: Panel, b: Bounds, v0: np.ndarray) -> np.ndarray:
-    """Sum over each window of ``v0`` (missing values already replaced by 0); 0 when empty.
+def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
+    """Sum over each window of ``v0`` (finite; missing values already replaced by 0); 0 when empty.
 
     Long windows take differences of running totals, which lose digits where the totals
-    dwarf the window's own sum (a large value earlier in the subject): rows whose
-    rounding bound exceeds :data:`SUM_RTOL` of the result are added up directly instead.
+    dwarf the window's own sum (a large value earlier in the subject) and overflow where
+    they pass the float64 maximum: rows whose rounding bound exceeds :data:`SUM_RTOL` of
+    the result, or whose result is not finite, are added up directly instead.
     """
     if b.width <= DIRECT_MAX:
         return _direct(b, v0, np.add, 0.0)
-    prefix = K.cumsum(p, v0)
-    top, bottom = _prefix_ends(p, b, prefix)
+    prefix = K.cumsum(s, v0)
+    top, bottom = _prefix_ends(s, b, prefix)
+    # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
+    nonneg = not v0.size or v0.min() >= 0
     del prefix  # arrays of n floats are freed or reused as soon as possible: memory peaks here
-    out = top - bottom
+    with np.errstate(invalid="ignore", over="ignore"):
+        out = top - bottom
     del bottom
     out[b.length == 0] = 0.0
-    # For values >= 0 the subject's running sum of |v| is the prefix sum itself.
-    if v0.size and v0.min() >= 0:
-        top += p.n * _EPS * float(v0.sum())
-        scale = top
-    else:
-        del top
-        scale = _magnitude(p, b, v0)
-    scale *= 8 * _EPS
-    bound = scale
-    redo = np.flatnonzero((bound > SUM_RTOL * np.abs(out)) & (b.length > 0))
-    del bound, scale
+    bound = _rounding(s, b, top if nonneg else None, v0)
+    del top
+    with np.errstate(invalid="ignore"):
+        redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
+    del bound
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
         nz = count(b, v0 != 0)
@@ -214,34 +154,38 @@ def total(p: Panel, b: Bounds, v0: np.ndarray) -> np.ndarray:
     return out
 
 
-def _prefix_ends(p: Panel, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _prefix_ends(s: Subjects, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Inclusive per-subject prefix at the window's last row and just before its first row;
     their difference is the window sum (meaningless for empty windows)."""
     before = np.empty_like(prefix)  # sum of the subject's rows before row j, exactly 0 at starts
-    if p.n:
+    if s.n:
         before[1:] = prefix[:-1]
-        before[p.starts] = 0.0
+        before[s.starts] = 0.0
     return prefix[np.maximum(b.hi - 1, 0)], before[b.lo]
 
 
-def _magnitude(p: Panel, b: Bounds, v: np.ndarray) -> np.ndarray:
-    """Per row: what the rounding of a window sum from prefix sums scales with.
+def _rounding(s: Subjects, b: Bounds, magnitude_top: np.ndarray | None, v: np.ndarray) -> np.ndarray:
+    """Per row: a bound on the rounding error of a window sum taken from prefix sums.
 
-    That is the sum of |v| over the subject's rows up to the window's end (prefix sums
-    of the subject pass through every partial sum on the way), plus n * eps times the
-    sum of |v| over all rows, for the digits the running total shared by all subjects
-    leaves behind (a generous allowance: such errors grow like sqrt(n) in practice).
+    A sequential prefix sum over k values errs by at most (k - 1) eps times the sum of
+    their magnitudes; a window's sum is the difference of two such prefixes of its own
+    subject, the longer one at the window's end.  ``magnitude_top`` is that running sum of
+    |v| at the window's end when already at hand.  Depends on the row's subject only.
     """
-    a = np.abs(v)
-    run = np.cumsum(a)
-    if p.n == 0:
-        return run
-    before = (run[p.starts] - a[p.starts])[p.grp]
-    return run[np.maximum(b.hi - 1, 0)] - before + p.n * _EPS * run[-1]
+    if magnitude_top is None:
+        run = K.cumsum(s, np.abs(v))
+        magnitude_top = run[np.maximum(b.hi - 1, 0)]
+    k = (s.pos[np.maximum(b.hi - 1, 0)] + 2).astype(np.float64) if s.n else np.zeros(0)
+    return 2 * _EPS * k * magnitude_top
 
 
 def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
-    return np.nansum(vals, axis=1)
+    out = np.nansum(vals, axis=1)
+    over = ~np.isfinite(out)
+    if over.any():  # an intermediate sum passed the float64 maximum: add scaled down, scale back
+        with np.errstate(over="ignore"):
+            out[over] = np.nansum(vals[over] * _SCALE_DOWN, axis=1) * _SCALE_UP
+    return out
 
 
 def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np.ndarray:
@@ -258,35 +202,36 @@ def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np
 
 
 # ---------------------------------------------------------------------- var, std
-def variance(p: Panel, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.ndarray) -> np.ndarray:
+def variance(s: Subjects, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.ndarray) -> np.ndarray:
     """Sample variance of the non-missing values of each window; NaN below two values.
 
     ``y`` must be finite where ``valid`` (infinities are the caller's business).
     """
-    out = np.full(p.n, np.nan)
+    out = np.full(s.n, np.nan)
     enough = cnt >= 2
     if b.width <= DIRECT_MAX:
         rows = np.flatnonzero(enough)
         out[rows] = padded_apply(y, b, rows, _two_pass_var)
         return out
     # Centre by the subject mean so that prefix sums of squares stay of the window's size.
-    n_valid = K.subject_reduce(p, np.add, valid.astype(np.float64))
+    n_valid = s.reduce(np.add, valid.astype(np.float64))
     v0 = np.where(valid, y, 0.0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        centre = K.subject_reduce(p, np.add, v0) / n_valid
-    w = np.where(valid, y - np.where(n_valid > 0, centre, 0.0), 0.0)
-    ww = w * w
-    t1, b1 = _prefix_ends(p, b, K.cumsum(p, w))
-    t2, b2 = _prefix_ends(p, b, K.cumsum(p, ww))
-    s1 = np.where(b.length > 0, t1 - b1, 0.0)
-    s2 = np.where(b.length > 0, t2 - b2, 0.0)
-    safe_cnt = np.maximum(cnt, 1)
-    num = s2 - s1 * s1 / safe_cnt
-    # Rounding bound of num: of s2, and of s1 as it enters s1**2 / count (see _magnitude).
-    bound = 8 * _EPS * (_magnitude(p, b, ww) + np.abs(s2) + 2 * np.abs(s1) * _magnitude(p, b, w) / safe_cnt)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        centre = s.reduce(np.add, v0) / n_valid
+        w = np.where(valid, y - np.where(n_valid > 0, centre, 0.0), 0.0)
+        ww = w * w
+        t1, b1 = _prefix_ends(s, b, K.cumsum(s, w))
+        t2, b2 = _prefix_ends(s, b, K.cumsum(s, ww))
+        s1 = np.where(b.length > 0, t1 - b1, 0.0)
+        s2 = np.where(b.length > 0, t2 - b2, 0.0)
+        safe_cnt = np.maximum(cnt, 1)
+        num = s2 - s1 * s1 / safe_cnt
+        # Rounding bound of num: of s2, and of s1 as it enters s1**2 / count (see _rounding).
+        bound = 4 * (_rounding(s, b, None, ww) + _EPS * np.abs(s2)
+                     + 2 * np.abs(s1) * _rounding(s, b, None, w) / safe_cnt)
         out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), np.nan)
-    redo = np.flatnonzero(enough & (bound > VAR_RTOL * num))
+        # not finite: an overflow on the way (the two-pass sums below scale if they must)
+        redo = np.flatnonzero(enough & ((bound > VAR_RTOL * num) | ~np.isfinite(num) | ~np.isfinite(bound)))
     if redo.size:
         out[redo] = padded_apply(y, b, redo, _two_pass_var)
     return out
@@ -294,9 +239,16 @@ def variance(p: Panel, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.ndar
 
 def _two_pass_var(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
     # Corrected two-pass formula: the second term removes the rounding error of the mean.
-    mean = np.nansum(vals, axis=1) / c
-    dev = vals - mean[:, None]
-    return np.maximum(np.nansum(dev * dev, axis=1) - np.nansum(dev, axis=1) ** 2 / c, 0.0) / (c - 1)
+    # Values near the float64 maximum are scaled down first (by a power of two, exactly),
+    # so the mean and squares do not overflow where the variance itself does not.
+    big = np.nanmax(np.abs(vals), axis=1) > 2.0**500
+    scale = np.where(big, _SCALE_DOWN, 1.0)[:, None]
+    with np.errstate(over="ignore"):
+        v = vals * scale
+        mean = np.nansum(v, axis=1) / c
+        dev = v - mean[:, None]
+        var = np.maximum(np.nansum(dev * dev, axis=1) - np.nansum(dev, axis=1) ** 2 / c, 0.0) / (c - 1)
+        return var / (scale[:, 0] * scale[:, 0])
 
 
 # ---------------------------------------------------------------------- min, max
@@ -359,7 +311,9 @@ def padded_apply(
     order = np.argsort(bucket, kind="stable")
     edges = np.flatnonzero(np.diff(bucket[order])) + 1
     for group in np.split(order, edges):
-        width = int(length[group].max())
+        # the width is fixed by the length class, not by the rows present: a row's padded
+        # sums then never depend on the other rows (pairwise summation follows the width)
+        width = 1 << int(bucket[group[0]])
         step = max(1, CHUNK_CELLS // width)
         cols = np.arange(width)
         for at in range(0, group.size, step):

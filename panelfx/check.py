@@ -87,7 +87,7 @@ def check(
     panel = Panel(sub, id=id_cols, time=time, strict=False)
     positions = np.flatnonzero(keep)  # frame positions of sub's rows
 
-    if notes and panel.order is not None:
+    if notes and panel.ordering.order is not None:
         parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(np.array([0]))],
                            "not_in_order", "rows are not grouped by subject in time order (panelfx sorts them)"))
     dup = panel.repeated.copy()
@@ -106,7 +106,7 @@ def check(
         raise OptionError("tolerance= needs spacing= (the planned interval between occasions)")
 
     if notes:
-        single = np.flatnonzero(panel.size[panel.starts] == 1) if panel.n else np.array([], dtype=int)
+        single = np.flatnonzero(panel.subjects.lengths == 1) if panel.n else np.array([], dtype=int)
         if len(single):
             pos = positions[panel.original_positions(panel.starts[single])]
             parts.append(_rows(frame, id_cols, time, pos, "single_occasion", "subject has one occasion only"))
@@ -138,15 +138,15 @@ def _rows(frame: pd.DataFrame, id_cols: Sequence[str], time: str, pos: np.ndarra
 
 def _schedule(frame: pd.DataFrame, panel: Panel, positions: np.ndarray, id_cols: Sequence[str], time: str,
               spacing: Any, tolerance: Any) -> list[pd.DataFrame]:
-    step = panel.span(spacing, "spacing")
+    step = float(panel.span(spacing, "spacing"))
     if step <= 0:
         raise OptionError(f"spacing must be positive, got {spacing!r}")
-    tol = step / 4 if tolerance is None else panel.span(tolerance, "tolerance")
+    tol = step / 4 if tolerance is None else float(panel.span(tolerance, "tolerance"))
     if tol < 0:
         raise OptionError(f"tolerance must not be negative, got {tolerance!r}")
     if panel.n == 0:
         return []
-    t0 = panel.t[panel.starts][panel.grp]
+    t0 = panel.t[panel.subjects.first]
     rel = (panel.t - t0).astype("float64")
     slot = np.rint(rel / step)
     dev = rel - slot * step
@@ -163,7 +163,7 @@ def _schedule(frame: pd.DataFrame, panel: Panel, positions: np.ndarray, id_cols:
                       + f" (tolerance {float(panel.duration(np.array([tol]))[0])})")
             parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(where)], problem, detail))
 
-    prev_slot = np.where(panel.pos > 0, np.roll(slot, 1), np.nan)
+    prev_slot = np.where(panel.subjects.pos > 0, np.roll(slot, 1), np.nan)
     gap = np.where(panel.repeated, 0, slot - prev_slot - 1)
     extra = np.flatnonzero((gap == -1) & ~panel.repeated)
     if len(extra):

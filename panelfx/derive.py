@@ -6,6 +6,9 @@ from typing import Sequence
 
 import pandas as pd
 
+import numpy as np
+
+from ._columns import Take
 from ._panel import Panel
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
@@ -103,25 +106,38 @@ def derive(
     """
     panel = Panel(frame, id=id, time=time, unit=unit)
     names = plan(list(frame.columns), transforms, panel.id_cols, panel.time_col)
-    new: dict[str, object] = {}
-    for tr in transforms:
+    new = compute_all(panel, transforms)
+    if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
+        raise PanelError(f"transforms made columns {list(new)}, expected {names}")
+    # One concatenation (a column at a time fragments the frame); concat copies, so the input
+    # is never modified.
+    added = pd.DataFrame({k: v.array for k, v in new.items()}, index=frame.index)
+    return pd.concat([frame, added], axis=1) if new else frame.copy()
+
+
+def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.Series]:
+    """Run the transforms on one panel; each output back in the caller's row order, as a Series.
+
+    Transforms return sorted-order results: arrays, or a :class:`~panelfx._columns.Take` for
+    a column whose dtype must be kept.  Each is put back in the caller's order here, once.
+    """
+    frame = panel.frame
+    new: dict[str, pd.Series] = {}
+    for i, tr in enumerate(transforms):
         values = tr.compute(panel)
-        for name, v in zip(tr.outputs(), values):
+        outputs = tr.outputs()
+        if len(values) != len(outputs):
+            raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
+                             f"{len(outputs)} outputs {list(outputs)}")
+        for name, v in zip(outputs, values):
+            if isinstance(v, Take):
+                v = panel.columns.take(v.col, v.rows)
+            else:
+                v = panel.ordering.unsort(np.asarray(v))
             s = pd.Series(v, index=frame.index, name=name, copy=False)
             new[name] = s
-            panel.add_column(name, s)
-    assert list(new) == names
-    # Under copy-on-write (pandas 3) a shallow copy cannot leak changes back to the input.
-    out = frame.copy(deep=not _copy_on_write())
-    for name, s in new.items():
-        out[name] = s
-    return out
-
-
-def _copy_on_write() -> bool:
-    if int(pd.__version__.split(".")[0]) >= 3:
-        return True
-    return bool(pd.get_option("mode.copy_on_write"))
+            panel.columns.add(name, s)
+    return new
 
 
 __all__ = ["derive"]

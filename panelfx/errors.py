@@ -18,6 +18,7 @@ __all__ = [
     "DuplicateOccasionError",
     "TimeTypeError",
     "ColumnTypeError",
+    "PrecisionError",
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",
@@ -72,6 +73,10 @@ class TimeTypeError(PanelError, TypeError):
 
 class ColumnTypeError(PanelError, TypeError):
     """A column holds values of the wrong type, e.g. text where numbers are needed."""
+
+
+class PrecisionError(ColumnTypeError):
+    """Values a computation cannot hold exactly, e.g. integers beyond 2**53 read as float64."""
 
 
 class ColumnExistsError(PanelError, ValueError):

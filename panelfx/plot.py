@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any, Hashable, Sequence
 import numpy as np
 import pandas as pd
 
-from ._panel import Panel, to_float
+from ._panel import Panel
 from .errors import OptionError
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
@@ -122,8 +122,8 @@ def trajectories(
     panel = Panel(frame, id=id, time=time, strict=False)
     chosen = _choose(panel, subjects, seed)
     t = _sorted_time(panel)
-    y = panel.sort(to_float(frame[col], panel))
-    z = panel.sort(to_float(frame[overlay], panel)) if overlay is not None else None
+    y = panel.columns.numeric(col)
+    z = panel.columns.numeric(overlay) if overlay is not None else None
     for g, key in zip(chosen, _keys(panel, chosen)):
         rows = slice(panel.starts[g], panel.ends[g])
         tt, yy = t[rows], y[rows]

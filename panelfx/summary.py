@@ -72,9 +72,9 @@ def subject_summary(
     t0 = panel.t[panel.starts]
     out["follow_up"] = panel.duration(panel.t[ends - 1] - t0)
     # Time from the subject's first occasion keeps the slope sums on small numbers.
-    x_all = panel.duration(panel.t - t0[panel.grp]) if panel.n else np.zeros(0)
+    x_all = panel.elapsed_since(panel.subjects.first)
     for c in columns:
-        stats = _column_stats(panel, panel.numeric(c), x_all, n_sub)
+        stats = _column_stats(panel, panel.columns.numeric(c), x_all, n_sub)
         for stat in STATS:
             key = f"{c}_{stat}"
             if key in out:
@@ -103,8 +103,8 @@ def _column_stats(panel: Panel, y: np.ndarray, x_all: np.ndarray, n_sub: int) ->
     auc = np.bincount(g[1:][same], weights=area[same], minlength=n_sub).astype("float64")  # int when empty
     auc[n == 0] = np.nan
     if panel.n:
-        first = K.take(y, K.first_index(panel, valid)[panel.starts])
-        last = K.take(y, K.last_index_in_subject(panel, valid)[panel.starts])
+        first = K.take(y, K.first_index(panel.subjects, valid)[panel.starts])
+        last = K.take(y, K.last_index_in_subject(panel.subjects, valid)[panel.starts])
     else:
         first = last = np.zeros(0)
     return {"n": n, "first": first, "last": last, "mean": mean, "slope": slope, "auc": auc}

@@ -79,37 +79,3 @@ def test_running_sums_are_accurate_to_per_subject_sums(bench):
     assert bench.relative_error(out["dose_auc"].to_numpy(), exact["cumulative_area"]) <= 1e-12
     assert bench.relative_error(np.array([0.0, 1.0]), np.array([0.0, 1.0 + 1e-9])) > 1e-12
     assert bench.relative_error(np.array([1e-300, 1.0]), np.array([0.0, 1.0])) == float("inf")
-
-
-@pytest.mark.parametrize("seed", range(4))
-def test_fast_panel_ordering_matches_its_definition(seed):
-    """The engine's speed paths (packed sort key, integer ids sorted by value, the O(n)
-    sorted check) give exactly the order defined by first-appearance subject codes and
-    a stable sort on (code, time): ``np.lexsort``, or no order at all when the rows are
-    already grouped by subject in time order."""
-    from panelfx._panel import Panel, time_to_native
-
-    rng = np.random.default_rng(seed)
-    for trial in range(150):
-        n = int(rng.integers(2, 200))
-        ids = rng.integers(-5, int(rng.integers(1, 30)), n) * int(rng.choice([1, 7, 10**12]))
-        kind = trial % 4
-        t = [rng.integers(0, 30, n), np.round(rng.normal(size=n), 2 if trial % 2 else 9),
-             pd.to_datetime(rng.integers(0, 50, n) * 86_400 * 10**9), rng.integers(0, 1000, n) * 1.0][kind]
-        df = pd.DataFrame({"id": ids if trial % 7 else ids.astype(str), "t": t})
-        if trial % 3 == 0:
-            df = df.sort_values(["id", "t"])
-        if trial % 5 == 0:  # grouped by subject, in time order, subjects not in id order
-            blocks = [g for _, g in df.sort_values(["id", "t"]).groupby("id")]
-            df = pd.concat([blocks[i] for i in rng.permutation(len(blocks))])
-        p = Panel(df, id="id", time="t", strict=False)
-        codes = pd.factorize(df["id"], sort=False)[0]
-        tt = time_to_native(df["t"], p.time_kind)
-        same = codes[1:] == codes[:-1]
-        in_order = (codes[1:] >= codes[:-1]).all() and (tt[1:][same] >= tt[:-1][same]).all()
-        if in_order:
-            assert p.order is None
-        else:
-            assert np.array_equal(p.order, np.lexsort((tt, codes)))
-        sc = codes if in_order else codes[p.order]
-        assert np.array_equal(p.starts, np.flatnonzero(np.r_[True, sc[1:] != sc[:-1]]))

@@ -15,6 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import panelfx as px
+from panelfx import _kernels as K
 from panelfx import _windows as W
 from panelfx.testing import assert_matches_reference, reference
 from panelfx.testing.strategies import ALL_TIME_KINDS, VALUE_KINDS, panels
@@ -40,18 +41,19 @@ def col(df, name):
 def kernels(*, direct: int | None = None, chunk: int | None = None, keyed: bool = True):
     """Force the kernels' internal paths: ``direct`` = longest window summed directly
     (0: always prefix sums / sparse table), ``chunk`` = cells of a padded matrix,
-    ``keyed=False`` = window starts by bisection instead of the integer-key merge."""
-    saved = W.DIRECT_MAX, W.CHUNK_CELLS, W._tick_keys
+    ``keyed=False`` = window starts from the rank key and a binary search instead of the
+    time-offset key and a merge."""
+    saved = W.DIRECT_MAX, W.CHUNK_CELLS
+    token = K.FORCED_SEARCH.set(() if keyed else ("rank", "searchsorted"))
     try:
         if direct is not None:
             W.DIRECT_MAX = direct
         if chunk is not None:
             W.CHUNK_CELLS = chunk
-        if not keyed:
-            W._tick_keys = lambda p, span: None
         yield
     finally:
-        W.DIRECT_MAX, W.CHUNK_CELLS, W._tick_keys = saved
+        W.DIRECT_MAX, W.CHUNK_CELLS = saved
+        K.FORCED_SEARCH.reset(token)
 
 
 #: Every internal path: (longest direct window, padded-matrix cells, integer-key window starts).

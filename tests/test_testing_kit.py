@@ -122,10 +122,10 @@ class _PeekNext(Transform):
         return "peeks"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
+        y = panel.columns.numeric(self.col)
         nxt = np.r_[y[1:], np.nan]
-        last = panel.pos == panel.size - 1
-        return [panel.unsort(np.where(last, y, nxt))]
+        last = panel.subjects.pos == panel.subjects.size - 1
+        return [np.where(last, y, nxt)]
 
 
 def test_past_only_passes_for_past_only_transforms():
@@ -340,7 +340,7 @@ def test_panels_cover_the_promised_cases():
         "single-occasion subject": lambda c: (sizes(c) == 1).any() and (sizes(c) > 1).any(),
         "all-missing subject": lambda c: blank(c).any() and not blank(c).all(),
         "tied values": lambda c: c.frame["y"].dropna().duplicated().any(),
-        "shuffled rows": lambda c: Panel(c.frame, **c.keys).order is not None,
+        "shuffled rows": lambda c: Panel(c.frame, **c.keys).ordering.order is not None,
         "string index": lambda c: c.frame.index.dtype != "int64",
         "integer index with gaps": lambda c: c.frame.index.dtype == "int64" and len(c.frame) > 1
         and not isinstance(c.frame.index, pd.RangeIndex),
@@ -382,7 +382,7 @@ def test_panels_reject_unknown_kinds(kinds):
 def test_panels_options(case):
     """shuffle=False keeps rows sorted with a default index; missing=False has no missing y."""
     assert isinstance(case.frame.index, pd.RangeIndex)
-    assert Panel(case.frame, **case.keys).order is None
+    assert Panel(case.frame, **case.keys).ordering.order is None
     assert case.frame["y"].notna().all()
     assert len(case.frame) == 2 * case.frame.groupby(case.id, observed=True).ngroups
 

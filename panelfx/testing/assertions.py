@@ -155,11 +155,11 @@ def _assert_monotonic(frame: pd.DataFrame, col: str, id: str | Sequence[str], ti
                       ignore_missing: bool, increasing: bool) -> None:
     __tracebackhide__ = True
     p = _panel(frame, id, time)
-    v = p.numeric(col)
+    v = p.columns.numeric(col)
     present = ~np.isnan(v)
-    before = K.shift_index(p, 1)
+    before = K.shift_index(p.subjects, 1)
     if ignore_missing:
-        last = K.last_index_upto(p, present)
+        last = K.last_index_upto(p.subjects, present)
         prev = np.where(before >= 0, last[np.maximum(before, 0)], -1)
     else:
         prev = before
@@ -178,8 +178,9 @@ def _assert_monotonic(frame: pd.DataFrame, col: str, id: str | Sequence[str], ti
         prev_label = np.where(prev >= 0, np.asarray(frame.index, dtype=object)[np.maximum(prev_rows, 0)], None)
         _fail(
             f"column {col!r} is not {word} within subject in time order{missing_note}",
-            frame, p.unsort(bad), p.id_cols, time,
-            {col: p.unsort(v), "previous value": p.unsort(pv), "previous row": p.unsort(prev_label)},
+            frame, p.ordering.unsort(bad), p.id_cols, time,
+            {col: p.ordering.unsort(v), "previous value": p.ordering.unsort(pv),
+             "previous row": p.ordering.unsort(prev_label)},
         )
 
 
@@ -279,10 +280,10 @@ def assert_past_only(
     full = derive(frame, *transforms, id=id, time=time, unit=unit)
     outputs = [c for tr in transforms for c in tr.outputs()]
     p = _panel(frame, id, time)
-    pos = p.unsort(p.pos)
+    pos = p.ordering.unsort(p.subjects.pos)
     if p.n == 0:
         return
-    longest = int(p.size.max())
+    longest = int(p.subjects.lengths.max())
     ranks = list(range(longest - 1))  # cutting after the last rank changes nothing
     if max_ranks is not None and len(ranks) > max_ranks:
         rng = np.random.default_rng(seed)

@@ -5,76 +5,10 @@ from __future__ import annotations
 import dataclasses
 from typing import Any, Sequence
 
-import numpy as np
-
-from .. import _kernels as K
+from .._columns import Take
 from .._panel import Panel
-from .._transform import Transform, check_choice, check_column_name, check_name
-from ..errors import NotConstantError, OptionError, rows_message
-
-RULES = ("first", "first_valid", "last_before")
-
-
-def check_rule(rule: str, reference: str | float | None) -> None:
-    """Validate a baseline rule and its reference (shared with change from baseline)."""
-    check_choice("rule", rule, RULES)
-    if rule == "last_before":
-        if reference is None:
-            raise OptionError("rule='last_before' needs reference= (a column of reference times, or a number)")
-        if isinstance(reference, bool) or not isinstance(reference, (str, int, float)):
-            raise OptionError(f"reference must be a column name or a number, got {reference!r}")
-    elif reference is not None:
-        raise OptionError(f"reference= is used only with rule='last_before', not rule={rule!r}")
-
-
-def reference_columns(reference: str | float | None) -> tuple[str, ...]:
-    return (reference,) if isinstance(reference, str) else ()
-
-
-def rule_words(rule: str, reference: str | float | None) -> str:
-    if rule == "first":
-        return "value at the subject's first occasion"
-    if rule == "first_valid":
-        return "first non-missing value of the subject"
-    ref = f"column {reference!r}" if isinstance(reference, str) else f"time {reference!r}"
-    return f"last non-missing value on or before the reference time ({ref})"
-
-
-def baseline_index(panel: Panel, col: str, rule: str, reference: str | float | None) -> np.ndarray:
-    """Per row (sorted order): the row holding the subject's baseline value of ``col``, or -1."""
-    if rule == "first":
-        return panel.starts[panel.grp]
-    valid = ~panel.missing(col)
-    if rule == "first_valid":
-        return K.first_index(panel, valid)
-    ref = _reference_times(panel, reference)
-    return K.last_index_in_subject(panel, valid & (panel.t <= ref))
-
-
-def _reference_times(panel: Panel, reference: str | float | None) -> np.ndarray:
-    """The subject's reference time on every row (below every time when it has none)."""
-    if not isinstance(reference, str):
-        if panel.time_kind != "number":
-            raise OptionError(
-                f"reference={reference!r} is a number but time column {panel.time_col!r} holds "
-                f"{panel.time_kind} values: give a column of reference times"
-            )
-        return np.full(panel.n, float(reference))
-    ref = panel.time_values(reference)
-    missing = panel.is_time_missing(ref)
-    first = K.first_index(panel, ~missing)
-    subject_ref = ref[np.maximum(first, 0)]
-    varies = ~missing & (ref != subject_ref)
-    if varies.any():
-        where = np.flatnonzero(varies)
-        ids = panel.ids_at(where)
-        raise NotConstantError(
-            rows_message("reference time varies within subject", reference, len(where), ids),
-            column=reference, count=len(where), ids=ids,
-        )
-    none = -np.inf if ref.dtype.kind == "f" else np.iinfo("int64").min
-    return np.where(first >= 0, subject_ref, none)
-
+from .._transform import Transform, check_column_name, check_name
+from ._common import baseline_index, check_rule, reference_columns, rule_words
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Baseline(Transform):
@@ -106,7 +40,7 @@ class Baseline(Transform):
         return f"baseline of {self.col!r}: {rule_words(self.rule, self.reference)}, carried to every row of the subject"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.gather(self.col, baseline_index(panel, self.col, self.rule, self.reference))]
+        return [Take(self.col, baseline_index(panel, self.col, self.rule, self.reference))]
 
 
 def baseline(

@@ -8,6 +8,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .. import _kernels as K
+from .._columns import Take
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_int, check_name
 from ._spans import check_span, span_words
@@ -50,13 +51,15 @@ class CarryForward(Transform):
         return words
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        src = K.last_index_upto(panel, ~panel.missing(self.col))
+        src = K.last_index_upto(panel.subjects, ~panel.columns.missing(self.col))
         ok = src >= 0
         if self.limit is not None:
             ok &= np.arange(panel.n) - src <= self.limit
         if self.max_span is not None:
-            ok &= panel.t - panel.t[np.maximum(src, 0)] <= panel.span(self.max_span, "max_span")
-        return [panel.gather(self.col, np.where(ok, src, -1))]
+            # at most max_span old: the source lies at or after t - max_span
+            oldest = panel.axis.back(panel.span(self.max_span, "max_span"), strict=False)
+            ok &= panel.axis.key[np.maximum(src, 0)] >= oldest
+        return [Take(self.col, np.where(ok, src, -1))]
 
 
 def carry_forward(

@@ -10,19 +10,9 @@ import numpy as np
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
-from .baseline import baseline_index, check_rule, reference_columns, rule_words
+from ._common import baseline_index, check_rule, difference, reference_columns, relative_change, rule_words
 
 KINDS = {"difference": "change", "percent": "pct_change", "ratio": "ratio"}
-
-
-def relative_change(y: np.ndarray, ref: np.ndarray, kind: str) -> np.ndarray:
-    """y - ref, 100 (y - ref) / ref or y / ref; the last two missing where ref is 0 or missing."""
-    if kind == "difference":
-        return y - ref
-    with np.errstate(divide="ignore", invalid="ignore"):
-        out = (y - ref) / ref * 100.0 if kind == "percent" else y / ref
-    out[ref == 0] = np.nan
-    return out
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -61,12 +51,15 @@ class ChangeFromBaseline(Transform):
         return f"{what} of {self.col!r}; baseline = {rule_words(self.rule, self.reference)}{rows}"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
         base_row = baseline_index(panel, self.col, self.rule, self.reference)
-        out = relative_change(y, K.take(y, base_row), self.kind)
+        if self.kind == "difference":
+            out = difference(panel, self.col, base_row)
+        else:
+            y = panel.columns.numeric(self.col)
+            out = relative_change(y, K.take(y, base_row), self.kind)
         if self.after_baseline_only:
             out[np.arange(panel.n) <= base_row] = np.nan
-        return [panel.unsort(out)]
+        return [out]
 
 
 def change_from_baseline(

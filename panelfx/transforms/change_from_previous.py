@@ -10,7 +10,7 @@ import numpy as np
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
-from .change_from_baseline import relative_change
+from ._common import difference, relative_change
 
 KINDS = {"difference": "diff", "percent": "pct_diff", "rate": "rate"}
 
@@ -49,18 +49,19 @@ class ChangeFromPrevious(Transform):
         return f"{what} of {self.col!r}; previous = {prev}"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
+        s = panel.subjects
         if self.skip_missing:
-            prev = K.at_previous(panel, K.last_index_upto(panel, ~np.isnan(y)))
+            prev = K.at_previous(s, K.last_index_upto(s, ~panel.columns.missing(self.col)))
         else:
-            prev = K.shift_index(panel, 1)
+            prev = K.shift_index(s, 1)
+        if self.kind == "difference":
+            return [difference(panel, self.col, prev)]
+        y = panel.columns.numeric(self.col)
         y_prev = K.take(y, prev)
         if self.kind == "rate":
             with np.errstate(divide="ignore", invalid="ignore"):
-                out = (y - y_prev) / K.elapsed_since(panel, prev)
-        else:
-            out = relative_change(y, y_prev, self.kind)
-        return [panel.unsort(out)]
+                return [(y - y_prev) / panel.elapsed_since(prev)]
+        return [relative_change(y, y_prev, self.kind)]
 
 
 def change_from_previous(

@@ -61,23 +61,26 @@ class Cumulative(Transform):
         return what
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
+        s = panel.subjects
+        y = panel.columns.numeric(self.col)
         if self.method == "sum" and self.restart_after is None:
             # A plain running total needs no intervals (same values as the general path).
             bad = np.isnan(y)
-            out = K.cumsum(panel, np.where(bad, 0.0, y))
+            out = K.cumsum(s, np.where(bad, 0.0, y))
             if self.missing == "propagate":
-                out[K.last_index_upto(panel, bad) >= 0] = np.nan
-            return [panel.unsort(out)]
-        prev = K.shift_index(panel, 1)
+                out[K.last_index_upto(s, bad) >= 0] = np.nan
+            return [out]
+        prev = K.shift_index(s, 1)
         has_prev = prev >= 0
         pi = np.maximum(prev, 0)
         step = panel.t - panel.t[pi]  # native units; 0 on each subject's first row
         breaks = np.zeros(panel.n, dtype=bool)
+        runs = s  # without restarts the runs are the subjects
         if self.restart_after is not None:
-            breaks = has_prev & (step > panel.span(self.restart_after, "restart_after"))
-        # Without restarts the runs are the subjects: skip rebuilding their boundaries.
-        runs = K.Runs(panel, breaks) if self.restart_after is not None else panel
+            # a gap longer than the span: the previous occasion lies strictly before t - span
+            recent = panel.axis.back(panel.span(self.restart_after, "restart_after"), strict=False)
+            breaks = has_prev & (panel.axis.key[pi] < recent)
+            runs = s.split(breaks)
         linked = has_prev & ~breaks  # the interval from the previous occasion counts
         miss = np.isnan(y)
         dt = panel.duration(step)
@@ -93,7 +96,7 @@ class Cumulative(Transform):
         out = K.cumsum(runs, part)
         if self.missing == "propagate":
             out[K.last_index_upto(runs, bad) >= 0] = np.nan
-        return [panel.unsort(out)]
+        return [out]
 
 
 def cumulative(

@@ -7,39 +7,8 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .. import _kernels as K
 from .._panel import Panel
-from .._transform import Transform, check_bool, check_column_name, check_name
-
-
-@dataclasses.dataclass(frozen=True, kw_only=True)
-class FlagHistory(Transform):
-    """Base of :class:`EventsSoFar` and :class:`~panelfx.transforms.ever.Ever`: counts of a flag so far."""
-
-    col: str
-    include_current: bool = True
-    name: str | None = None
-
-    def __post_init__(self) -> None:
-        check_column_name("col", self.col)
-        check_name(self.name)
-        check_bool("include_current", self.include_current)
-
-    def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
-
-    @property
-    def past_only(self) -> bool:
-        return True
-
-    def _when(self) -> str:
-        return "at or before" if self.include_current else "strictly before"
-
-    def counts(self, panel: Panel) -> np.ndarray:
-        """Events at the occasions so far (sorted order); a missing flag is not an event."""
-        event, _ = panel.flags(self.col)
-        count = K.running_count(panel, event)
-        return count if self.include_current else count - event
+from ._common import FlagHistory
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -56,7 +25,7 @@ class EventsSoFar(FlagHistory):
                 f"(a missing flag is not an event)")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.unsort(self.counts(panel))]
+        return [self.counts(panel)]
 
 
 def events_so_far(col: str, *, include_current: bool = True, name: str | None = None) -> EventsSoFar:

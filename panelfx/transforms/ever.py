@@ -6,7 +6,7 @@ import dataclasses
 from typing import Any, Sequence
 
 from .._panel import Panel
-from .events_so_far import FlagHistory
+from ._common import FlagHistory
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -23,7 +23,7 @@ class Ever(FlagHistory):
                 f"(a missing flag is not an event)")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.unsort(self.counts(panel) > 0)]
+        return [self.counts(panel) > 0]
 
 
 def ever(col: str, *, include_current: bool = True, name: str | None = None) -> Ever:

@@ -23,7 +23,7 @@ class Gap(OccasionHelper):
         return "time since the subject's previous occasion (missing on its first occasion)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.unsort(K.elapsed_since(panel, K.shift_index(panel, 1)))]
+        return [panel.elapsed_since(K.shift_index(panel.subjects, 1))]
 
 
 def gap(*, name: str | None = None) -> Gap:

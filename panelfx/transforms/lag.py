@@ -8,6 +8,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .. import _kernels as K
+from .._columns import Take
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_int, check_name
 from ..errors import OptionError
@@ -68,14 +69,18 @@ class Lag(Transform):
         return f"value of {self.col!r} {-self.periods} occasion(s) later in the subject (uses the future)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
+        s = panel.subjects
         if self.offset is None:
-            return [panel.gather(self.col, K.shift_index(panel, self.periods))]
-        target = panel.t - panel.span(self.offset, "offset")
-        src = K.bisect(panel, target, side="right") - 1  # last occasion at or before the target
-        ok = src >= panel.starts[panel.grp]
+            return [Take(self.col, K.shift_index(s, self.periods))]
+        offset = panel.span(self.offset, "offset")
+        # last occasion at or before t - offset: one before the first one after it
+        src = panel.first_at_or_after(panel.axis.back(offset, strict=True)) - 1
+        ok = src >= s.first
         if self.tolerance is not None:
-            ok &= panel.t[np.maximum(src, 0)] >= target - panel.span(self.tolerance, "tolerance")
-        return [panel.gather(self.col, np.where(ok, src, -1))]
+            # the source must lie at or after t - offset - tolerance (spans add exactly)
+            oldest = panel.axis.back(offset + panel.span(self.tolerance, "tolerance"), strict=False)
+            ok &= panel.axis.key[np.maximum(src, 0)] >= oldest
+        return [Take(self.col, np.where(ok, src, -1))]
 
 
 def lag(

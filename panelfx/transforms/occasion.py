@@ -22,7 +22,7 @@ class Occasion(OccasionHelper):
         return "occasion number within the subject in time order (1 = first occasion)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [panel.unsort(panel.pos + 1)]
+        return [panel.subjects.pos + 1]
 
 
 def occasion(*, name: str | None = None) -> Occasion:

@@ -10,6 +10,7 @@ import numpy as np
 
 from .. import _windows as W
 from .._panel import Panel
+from .._subjects import Subjects
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_int, check_name
 from ..errors import OptionError
 from ._spans import check_span, span_label
@@ -98,25 +99,25 @@ class Rolling(Transform):
         return f"times in {left}t - {self.span}, t{right}"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
+        y = panel.columns.numeric(self.col)
         span = None if self.span is None else panel.span(self.span, "span")
         b = W.bounds(panel, occasions=self.occasions, span=span, closed=self.closed,
                      exclude_current=self.exclude_current)
         valid = ~np.isnan(y)
         cnt = W.count(b, valid)
         if self.stat == "count":
-            return [panel.unsort(cnt)]
-        out = self._statistic(panel, b, y, valid, cnt)
+            return [cnt]
+        out = self._statistic(panel.subjects, b, y, valid, cnt)
         out[cnt < self.min_valid] = np.nan
-        return [panel.unsort(out)]
+        return [out]
 
-    def _statistic(self, panel: Panel, b: W.Bounds, y: np.ndarray, valid: np.ndarray,
+    def _statistic(self, s: Subjects, b: W.Bounds, y: np.ndarray, valid: np.ndarray,
                    cnt: np.ndarray) -> np.ndarray:
         stat = self.stat
         if stat in ("min", "max"):
             return W.extreme(b, y, np.fmin if stat == "min" else np.fmax)
         if stat == "median":
-            out = np.full(panel.n, np.nan)
+            out = np.full(s.n, np.nan)
             rows = np.flatnonzero(cnt >= max(self.min_valid, 1))
             out[rows] = W.median(b, y, rows)
             return out
@@ -124,7 +125,7 @@ class Rolling(Transform):
         has_inf = bool(infinite.any())
         if stat in ("sum", "mean"):
             v0 = np.where(valid & ~infinite, y, 0.0)
-            out = W.total(panel, b, v0)
+            out = W.total(s, b, v0)
             if has_inf:  # IEEE sums: +inf wins, unless -inf is there too
                 up = W.count(b, y == np.inf) > 0
                 down = W.count(b, y == -np.inf) > 0
@@ -135,7 +136,7 @@ class Rolling(Transform):
             return out
         finite = valid & ~infinite
         yf = np.where(infinite, np.nan, y) if has_inf else y
-        out = W.variance(panel, b, yf, finite, W.count(b, finite) if has_inf else cnt)
+        out = W.variance(s, b, yf, finite, W.count(b, finite) if has_inf else cnt)
         if has_inf:
             out[W.count(b, infinite) > 0] = np.nan
         return np.sqrt(out) if stat == "std" else out

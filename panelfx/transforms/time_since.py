@@ -49,17 +49,18 @@ class TimeSince(Transform):
                 f"missing before any such event (a missing flag is not an event)")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        event, _ = panel.flags(self.col)  # a missing flag counts as no event
+        s = panel.subjects
+        event, _ = panel.columns.flags(self.col)  # a missing flag counts as no event
         rows = np.arange(panel.n)
         if self.which == "last":
-            src = K.last_index_upto(panel, event)
+            src = K.last_index_upto(s, event)
             if not self.include_current:
-                src = K.at_previous(panel, src)
+                src = K.at_previous(s, src)
         else:
-            src = K.first_index(panel, event)
+            src = K.first_index(s, event)
             after = src <= rows if self.include_current else src < rows
             src = np.where((src >= 0) & after, src, -1)
-        return [panel.unsort(K.elapsed_since(panel, src))]
+        return [panel.elapsed_since(src)]
 
 
 def time_since(

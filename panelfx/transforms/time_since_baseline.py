@@ -22,8 +22,7 @@ class TimeSinceBaseline(OccasionHelper):
         return "time since the subject's first occasion (0 on that occasion)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        first = panel.t[panel.starts[panel.grp]]
-        return [panel.unsort(panel.duration(panel.t - first))]
+        return [panel.elapsed_since(panel.subjects.first)]
 
 
 def time_since_baseline(*, name: str | None = None) -> TimeSinceBaseline:

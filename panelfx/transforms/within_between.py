@@ -52,16 +52,17 @@ class WithinBetween(Transform):
                 f"and the within-subject deviation from it")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        y = panel.numeric(self.col)
+        s = panel.subjects
+        y = panel.columns.numeric(self.col)
         valid = ~np.isnan(y)
         if self.level == "baseline":
-            level = K.take(y, K.first_index(panel, valid))
+            level = K.take(y, K.first_index(s, valid))
         else:
-            count = K.subject_reduce(panel, np.add, valid.astype("float64"))
+            count = s.reduce(np.add, valid.astype("float64"))
             with np.errstate(divide="ignore", invalid="ignore"):
                 # add.reduceat sums each subject's slice pairwise: accurate without a correction pass
-                level = K.subject_reduce(panel, np.add, np.where(valid, y, 0.0)) / count
-        return [panel.unsort(level), panel.unsort(y - level)]
+                level = s.reduce(np.add, np.where(valid, y, 0.0)) / count
+        return [level, y - level]
 
 
 def within_between(col: str, level: str = "mean", *, names: Sequence[str] | None = None) -> WithinBetween:
