@@ -113,6 +113,10 @@ class Columns:
         # numpy-backed columns as ndarrays: pandas 2.2 warns (FutureWarning) when take gets
         # the NumpyExtensionArray that .array returns for them
         values = s.to_numpy() if isinstance(s.dtype, np.dtype) else s.array
+        if isinstance(values, np.ndarray) and values.dtype.kind in "iu" and (rows < 0).any() \
+                and values.size and (values.max() > EXACT_FLOAT_INT or values.min() < -EXACT_FLOAT_INT):
+            # float64 would round these; the nullable integer type holds them and a missing value
+            values = pd.array(values, dtype=f"{'U' if values.dtype.kind == 'u' else ''}Int64")
         src = np.where(rows >= 0, self.ordering.positions(np.maximum(rows, 0)), -1)
         return pd.api.extensions.take(values, self.ordering.unsort(src), allow_fill=True)
 

@@ -131,7 +131,12 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
     the result, or whose result is not finite, are added up directly instead.
     """
     if b.width <= DIRECT_MAX:
-        return _direct(b, v0, np.add, 0.0)
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = _direct(b, v0, np.add, 0.0)
+        over = np.flatnonzero(~np.isfinite(out))
+        if over.size:  # an overflow on the way: add again, scaled
+            out[over] = padded_apply(v0, b, over, _sum_of_rows)
+        return out
     prefix = K.cumsum(s, v0)
     top, bottom = _prefix_ends(s, b, prefix)
     # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
@@ -180,7 +185,8 @@ def _rounding(s: Subjects, b: Bounds, magnitude_top: np.ndarray | None, v: np.nd
 
 
 def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
-    out = np.nansum(vals, axis=1)
+    with np.errstate(over="ignore", invalid="ignore"):
+        out = np.nansum(vals, axis=1)
     over = ~np.isfinite(out)
     if over.any():  # an intermediate sum passed the float64 maximum: add scaled down, scale back
         with np.errstate(over="ignore"):
@@ -241,14 +247,14 @@ def _two_pass_var(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
     # Corrected two-pass formula: the second term removes the rounding error of the mean.
     # Values near the float64 maximum are scaled down first (by a power of two, exactly),
     # so the mean and squares do not overflow where the variance itself does not.
-    big = np.nanmax(np.abs(vals), axis=1) > 2.0**500
-    scale = np.where(big, _SCALE_DOWN, 1.0)[:, None]
+    top = np.nanmax(np.abs(vals), axis=1)
+    exp = np.where(top > 2.0**500, np.frexp(top)[1], 0)  # rows near the limit: largest value below 1
+    v = np.ldexp(vals, -exp[:, None])
+    mean = np.nansum(v, axis=1) / c
+    dev = v - mean[:, None]
+    var = np.maximum(np.nansum(dev * dev, axis=1) - np.nansum(dev, axis=1) ** 2 / c, 0.0) / (c - 1)
     with np.errstate(over="ignore"):
-        v = vals * scale
-        mean = np.nansum(v, axis=1) / c
-        dev = v - mean[:, None]
-        var = np.maximum(np.nansum(dev * dev, axis=1) - np.nansum(dev, axis=1) ** 2 / c, 0.0) / (c - 1)
-        return var / (scale[:, 0] * scale[:, 0])
+        return np.ldexp(var, 2 * exp)  # inf where the variance itself is beyond float64
 
 
 # ---------------------------------------------------------------------- min, max

@@ -1,0 +1,172 @@
+"""Every ordering strategy, search path and "probe the first rows" shortcut of the engine, forced.
+
+Each path must give exactly what its definition gives: the ordering equals ``np.lexsort`` on
+(time, first-appearance subject code) (numpy is the outside reference), and every search path
+gives bit-identical derived values.
+"""
+
+from __future__ import annotations
+
+import contextlib
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import panelfx as px
+from panelfx import _kernels as K
+from panelfx import _order, _time
+from panelfx._panel import Panel
+from panelfx._subjects import Subjects
+
+ORDERINGS = ["identity", "by_value", "packed", "ranked", "lexsort"]
+SEARCHES = [(), ("rank",), ("merge",), ("searchsorted",), ("rank", "searchsorted")]
+
+
+@contextlib.contextmanager
+def search(paths: tuple[str, ...]):
+    token = K.FORCED_SEARCH.set(paths)
+    try:
+        yield
+    finally:
+        K.FORCED_SEARCH.reset(token)
+
+
+def random_frame(rng: np.random.Generator, trial: int) -> pd.DataFrame:
+    n = int(rng.integers(2, 200))
+    ids = rng.integers(-5, int(rng.integers(1, 30)), n) * int(rng.choice([1, 7, 10**12]))
+    kind = trial % 5
+    t = [rng.integers(0, 30, n), np.round(rng.normal(size=n), 2 if trial % 2 else 9),
+         pd.to_datetime(rng.integers(0, 50, n) * 86_400 * 10**9), rng.integers(0, 1000, n) * 1.0,
+         rng.normal(size=n) / 3][kind]
+    df = pd.DataFrame({"id": ids if trial % 7 else ids.astype(str), "t": t, "y": rng.normal(size=n)})
+    if trial % 3 == 0:
+        df = df.sort_values(["id", "t"])
+    if trial % 5 == 0:  # grouped by subject, in time order, subjects not in id order
+        blocks = [g for _, g in df.sort_values(["id", "t"]).groupby("id")]
+        df = pd.concat([blocks[i] for i in rng.permutation(len(blocks))])
+    return df
+
+
+@pytest.mark.parametrize("strategy", [None, *ORDERINGS])
+def test_every_ordering_strategy_gives_the_lexsort_order(strategy):
+    rng = np.random.default_rng(11)
+    used = set()
+    for trial in range(120):
+        df = random_frame(rng, trial)
+        with contextlib.ExitStack() as stack:
+            if strategy:
+                stack.enter_context(_order.forced(strategy))
+            p = Panel(df, id="id", time="t", strict=False)
+        used.add(p.ordering.strategy)
+        codes = pd.factorize(df["id"], sort=False)[0]
+        tt = df["t"].to_numpy()
+        want = np.lexsort((tt, codes))
+        got = p.ordering.order if p.ordering.order is not None else np.arange(len(df))
+        assert np.array_equal(got, want), (trial, p.ordering.strategy)
+        sc = codes[got]
+        assert np.array_equal(p.starts, np.flatnonzero(np.r_[True, sc[1:] != sc[:-1]]))
+    if strategy is not None:
+        assert strategy in used  # the forced path really ran
+
+
+def test_strategies_chosen_without_forcing():
+    """Which path the engine picks by itself: identity on sorted input, by_value for integer ids,
+    packed for others, ranked when raw times need too many bits, lexsort when even ranks do not fit."""
+    sorted_df = pd.DataFrame({"id": [1, 1, 2], "t": [0, 1, 0]})
+    assert Panel(sorted_df, id="id", time="t").ordering.strategy == "identity"
+    assert Panel(sorted_df.iloc[::-1], id="id", time="t").ordering.strategy == "by_value"
+    assert Panel(sorted_df.iloc[::-1].astype({"id": str}), id="id", time="t").ordering.strategy == "packed"
+    wide = pd.DataFrame({"id": ["a", "b", "a"], "t": np.array([2**62, 0, 0], dtype=np.int64)})
+    assert Panel(wide, id="id", time="t").ordering.strategy == "ranked"
+    # codes, ranks and row numbers that cannot share 63 bits: exercised through the bit budget
+    codes = np.array([2**40, 0, 2**40], dtype=np.int64)
+    order, _ = _order._sort(codes, np.array([2**30, 5, 0], dtype=np.int64), None)
+    assert order.strategy == "ranked"
+    order, sorted_codes = _order._sort(np.array([2**61, 0, 2**61], dtype=np.int64),
+                                       np.array([1, 0, 0], dtype=np.int64), None)
+    assert order.strategy == "lexsort" and order.order.tolist() == [1, 2, 0]
+    assert sorted_codes.tolist() == [0, 2**61, 2**61]
+
+
+def test_integer_ids_too_spread_to_pack_are_factorised():
+    df = pd.DataFrame({"id": np.array([2**62, -(2**62), 2**62], dtype=np.int64), "t": [1, 0, 0]})
+    p = Panel(df, id="id", time="t")
+    assert p.ordering.strategy == "packed"
+    assert p.ordering.order.tolist() == [2, 0, 1]
+
+
+def test_small_integer_id_types_do_not_wrap():
+    """int8 ids from -100 to 100: the offset from the smallest id does not fit int8."""
+    df = pd.DataFrame({"id": np.array([100, -100, 100, -100], dtype=np.int8), "t": [1, 1, 0, 0],
+                       "y": [1.0, 2.0, 3.0, 4.0]})
+    out = px.derive(df, px.lag("y"), id="id", time="t")
+    assert out["y_lag1"].tolist()[:2] == [3.0, 4.0]
+
+
+@pytest.mark.parametrize("paths", SEARCHES)
+def test_every_search_path_gives_the_same_values(paths):
+    rng = np.random.default_rng(12)
+    steps = [px.lag("y", offset=0.5), px.lag("y", offset=1, tolerance=0.25, name="lag_tol"),
+             px.rolling("y", "sum", span=1.5), px.rolling("y", "max", span=0.75, closed="both"),
+             px.carry_forward("y", max_span=1)]
+    for trial in range(30):
+        n = int(rng.integers(1, 300))
+        t = np.round(rng.random(n) * 10, [0, 1, 2][trial % 3]) if trial % 4 else rng.random(n) * 10
+        df = pd.DataFrame({"id": rng.integers(0, 8, n), "t": t, "y": rng.normal(size=n)})
+        df = df.drop_duplicates(["id", "t"])
+        df.loc[df.sample(frac=0.2, random_state=trial).index, "y"] = np.nan
+        want = px.derive(df, *steps, id="id", time="t")
+        with search(paths):
+            got = px.derive(df, *steps, id="id", time="t")
+        pd.testing.assert_frame_equal(got, want, check_exact=True)
+
+
+def test_search_paths_are_really_taken():
+    s = Subjects.from_codes(np.array([0, 0, 1]))
+    tkey = np.array([5, 9, 2], dtype=np.int64)
+    assert K.search_key(s, tkey).mode == "offset"
+    with search(("rank",)):
+        assert K.search_key(s, tkey).mode == "rank"
+    wide = np.array([0, 2**62, 5], dtype=np.int64)  # offsets need 63 bits: ranks instead
+    sk = K.search_key(s, wide)
+    assert sk.mode == "rank"
+    q = np.array([1, 2**62, 6], dtype=np.int64)
+    assert K.first_at_or_after(s, wide, sk, q).tolist() == [1, 1, 3]  # hand computed
+
+
+def test_unsorted_queries_are_answered_in_place():
+    key = np.array([1, 3, 3, 7], dtype=np.int64)
+    q = np.array([7, 0, 3, 8, 2], dtype=np.int64)
+    want = np.searchsorted(key, q, side="left")  # numpy as the reference
+    for paths in [(), ("merge",), ("searchsorted",)]:
+        with search(paths):
+            assert K._lookup(key, q).tolist() == want.tolist()
+
+
+# ---------------------------------------------------------------------- probe shortcuts
+def test_decimal_probe_of_the_first_rows_is_confirmed_on_all_rows():
+    """The first 4,096 times are whole numbers, later ones have two decimals: the scale must come
+    from every row, not the probe."""
+    n = _time.PROBE + 50
+    t = np.arange(n, dtype=np.float64)
+    t[-50:] = np.arange(50) * 0.01 + n + 0.5
+    assert _time.decimal_scale(t) == 100
+    assert _time.decimal_scale(t[: _time.PROBE]) == 1
+    df = pd.DataFrame({"id": 1, "t": t, "y": 1.0})
+    out = px.derive(df, px.rolling("y", "count", span=0.02), id="id", time="t")
+    # (t - 0.02, t] holds the row before (0.01 earlier) and itself, exactly as decimals
+    assert out["y_count_0.02"].iloc[-1] == 2 and out["y_count_0.02"].iloc[-49] == 2
+
+
+def test_decimal_probe_rejects_binary_floats_after_the_first_rows():
+    t = np.arange(_time.PROBE + 3, dtype=np.float64) / 10
+    t[-1] = t[-2] + 1 / 3
+    assert _time.decimal_scale(t) is None
+    axis, _ = _time.TimeAxis.read(pd.Series(t, name="t"))
+    assert axis.binary
+
+
+def test_decimal_scale_needs_room_in_int64():
+    assert _time.decimal_scale(np.array([0.5, 1e18])) is None  # 1e18 * 10 would pass 2**62
+    assert _time.decimal_scale(np.array([1.0, 1e18])) == 1
