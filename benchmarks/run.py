@@ -43,7 +43,8 @@ import subprocess
 import sys
 import tempfile
 import time
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 

@@ -13,38 +13,38 @@ Declare the panel once (``id``, ``time``), pass transforms, get a tidy frame bac
 
 from __future__ import annotations
 
+from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.px)
+from ._transform import Transform
 from .check import check
-from .derive import derive
 from .derivation import Derivation, DerivationFileError
-from . import accessor as _accessor  # registers DataFrame.px
+from .derive import derive
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
-    PrecisionError,
     DuplicateOccasionError,
     MissingColumnError,
     NotConstantError,
     NullKeyError,
     OptionError,
     PanelError,
+    PrecisionError,
     TimeTypeError,
 )
-from ._transform import Transform
+from .summary import subject_summary
 from .transforms.baseline import baseline
+from .transforms.carry_forward import carry_forward
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
-from .transforms.lag import lag
-from .transforms.carry_forward import carry_forward
 from .transforms.cumulative import cumulative
 from .transforms.events_so_far import events_so_far
 from .transforms.ever import ever
 from .transforms.gap import gap
+from .transforms.lag import lag
 from .transforms.occasion import occasion
+from .transforms.rolling import rolling
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
-from .transforms.rolling import rolling
-from .summary import subject_summary
 
 __version__ = "0.1.0"
 

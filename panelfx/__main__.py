@@ -7,7 +7,7 @@ Commands: ``demo`` (invented demo cohort -> check -> derived variables), and, fr
 from __future__ import annotations
 
 import sys
-from typing import Sequence
+from collections.abc import Sequence
 
 HELP = """usage: python -m panelfx <command> [options]     (or: panelfx <command> [options])
 

@@ -10,8 +10,9 @@ Reads are cached per column, so several transforms on one column sort it once.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Hashable
 from dataclasses import dataclass
-from typing import Any, Callable, Hashable
+from typing import Any
 
 import numpy as np
 import pandas as pd

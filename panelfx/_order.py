@@ -23,9 +23,9 @@ Every strategy gives the same permutation; :func:`forced` makes a test use one.
 from __future__ import annotations
 
 import contextlib
+from collections.abc import Callable, Iterator, Sequence
 from contextvars import ContextVar
 from dataclasses import dataclass
-from typing import Callable, Iterator, Sequence
 
 import numpy as np
 import pandas as pd

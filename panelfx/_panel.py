@@ -15,7 +15,8 @@ Transforms compute on sorted arrays and return sorted-order results (or a
 from __future__ import annotations
 
 import functools
-from typing import Any, Hashable, Sequence
+from collections.abc import Hashable, Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd

@@ -101,7 +101,8 @@ def _datetimes(series: pd.Series, what: str) -> tuple[np.ndarray, str, Any]:
     if dtype == object:
         if pd.api.types.infer_dtype(s, skipna=True) == "date":
             # datetime.date objects: calendar dates, held in seconds (years 1 to 9999 fit)
-            vals = np.where(s.isna().to_numpy(), None, s.to_numpy())
+            vals = s.to_numpy(dtype=object, copy=True)
+            vals[s.isna().to_numpy()] = None  # NaN or NaT among the dates: NaT below
             return vals.astype("datetime64[D]").astype("datetime64[s]").view(np.int64), "s", None
         try:
             s = pd.to_datetime(s)
@@ -305,7 +306,7 @@ class TimeAxis:
                                   f"numbers: give a number in its units")
             if self.binary:
                 return float(value)
-            return exact_number(value) * (self.scale or 1)
+            return exact_number(value.item() if isinstance(value, np.generic) else value) * (self.scale or 1)
         if isinstance(value, (str, pd.Timedelta, _dt.timedelta, np.timedelta64)):
             try:
                 return span_ns(value) / self.tick_ns

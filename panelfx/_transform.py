@@ -9,7 +9,8 @@ Subclasses register themselves under ``type_name`` for that purpose.
 from __future__ import annotations
 
 import dataclasses
-from typing import TYPE_CHECKING, Any, ClassVar, Sequence
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from .errors import OptionError
 
@@ -17,7 +18,7 @@ if TYPE_CHECKING:
     from ._panel import Panel
 
 #: type_name -> transform class; filled by ``Transform.__init_subclass__``.
-REGISTRY: dict[str, type["Transform"]] = {}
+REGISTRY: dict[str, type[Transform]] = {}
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -49,7 +50,7 @@ class Transform:
         """The options in words, for the data dictionary."""
         raise NotImplementedError
 
-    def compute(self, panel: "Panel") -> Sequence[Any]:
+    def compute(self, panel: Panel) -> Sequence[Any]:
         """One array per output, in the caller's row order."""
         raise NotImplementedError
 

@@ -3,8 +3,10 @@
 A window is a run of consecutive sorted rows ``[lo, hi)`` inside the row's subject that
 ends at the row itself (``hi = i + 1``) or just before it (``hi = i``, when the current
 occasion is left out).  :class:`Bounds` holds ``lo`` and ``hi`` per row; every statistic
-here takes one.  Time windows find ``lo`` exactly (:func:`window_start`): one stable merge
-of integer keys when times are whole ticks (dates), else a per-subject bisection.  No function loops in Python over subjects or rows.  The loops
+here takes one.  Time windows find ``lo`` exactly: the panel's one search within subjects
+(:meth:`panelfx._panel.Panel.first_at_or_after`) on the time axis' integer key, with the
+threshold t - span computed exactly by the time axis.  No function loops in Python over
+subjects or rows.  The loops
 that remain run over a handful of window offsets (short windows), over doubling levels
 (about log2 of the longest window) or over row chunks of bounded memory (median).
 
@@ -37,9 +39,9 @@ Infinite values follow IEEE arithmetic: a sum holding +inf is +inf, one holding 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from fractions import Fraction
-from typing import Callable
 
 import numpy as np
 

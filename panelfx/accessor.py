@@ -26,7 +26,8 @@ the same name, so the results are identical:
 from __future__ import annotations
 
 import os
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import pandas as pd
 
@@ -43,7 +44,8 @@ class PanelAccessor:
     def __init__(self, frame: pd.DataFrame) -> None:
         self._frame = frame
 
-    def derive(self, *transforms: Transform, id: str | Sequence[str], time: str, unit: str | None = None) -> pd.DataFrame:
+    def derive(self, *transforms: Transform, id: str | Sequence[str], time: str,
+               unit: str | None = None) -> pd.DataFrame:
         """:func:`panelfx.derive` on this frame."""
         from .derive import derive
 

@@ -25,7 +25,8 @@ import io
 import json
 import os
 import sys
-from typing import Any, Callable, Sequence
+from collections.abc import Callable, Sequence
+from typing import Any, NoReturn
 
 import pandas as pd
 
@@ -51,7 +52,7 @@ class UsageError(Exception):
 
 
 class _Parser(argparse.ArgumentParser):
-    def error(self, message: str) -> None:  # one line, not argparse's usage dump and SystemExit
+    def error(self, message: str) -> NoReturn:  # one line, not argparse's usage dump and SystemExit
         raise UsageError(f"{message} (see '{self.prog} --help')")
 
 

@@ -9,7 +9,7 @@ analysis can be checked against.  They describe no real people, clinics or medic
 from __future__ import annotations
 
 import argparse
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd

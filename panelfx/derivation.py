@@ -32,7 +32,8 @@ import os
 import tempfile
 import types
 import typing
-from typing import Any, Iterable, Literal, Mapping, Sequence, Union
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any, Literal, Union
 
 import numpy as np
 import pandas as pd
@@ -148,7 +149,7 @@ class Derivation:
         """Names of the columns ``apply`` adds, in order."""
         return tuple(name for tr in self.transforms for name in tr.outputs())
 
-    def extend(self, *more: Transform | "Derivation") -> "Derivation":
+    def extend(self, *more: Transform | Derivation) -> Derivation:
         """A new derivation with more transforms (or the transforms of other derivations
         with the same panel declaration) after these ones."""
         added: list[Transform] = []
@@ -258,7 +259,7 @@ class Derivation:
         return json.dumps(self.to_dict(), indent=indent, ensure_ascii=False, allow_nan=False)
 
     @classmethod
-    def from_dict(cls, doc: Any) -> "Derivation":
+    def from_dict(cls, doc: Any) -> Derivation:
         """Rebuild from the plain values of :meth:`to_dict`, checking every key and type."""
         _expect(doc, dict, "", "the file must hold a JSON object")
         _no_unknown(doc, ("format", "version", "description", "panel", "transforms"), "")
@@ -304,7 +305,7 @@ class Derivation:
             raise DerivationFileError(str(err), path="panel" if where is None else f"transforms[{where}]") from None
 
     @classmethod
-    def from_json(cls, text: str | bytes) -> "Derivation":
+    def from_json(cls, text: str | bytes) -> Derivation:
         """Read a saved derivation; malformed input raises :class:`DerivationFileError`
         naming the key and its path in the file."""
         if isinstance(text, bytes):
@@ -330,7 +331,7 @@ class Derivation:
         write_atomic(path, lambda tmp: _write_text(tmp, self.to_json() + "\n"))
 
     @classmethod
-    def load(cls, path: str | os.PathLike[str]) -> "Derivation":
+    def load(cls, path: str | os.PathLike[str]) -> Derivation:
         """Read a derivation saved with :meth:`save`."""
         with open(path, "rb") as fh:
             data = fh.read()

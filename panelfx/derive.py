@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-from typing import Sequence
-
-import pandas as pd
+from collections.abc import Sequence
 
 import numpy as np
+import pandas as pd
 
 from ._columns import Take
 from ._panel import Panel

@@ -9,7 +9,8 @@ offending subject ids or row labels).
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 __all__ = [
     "PanelError",

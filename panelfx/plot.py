@@ -8,7 +8,8 @@ matplotlib ``Axes``.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any, Hashable, Sequence
+from collections.abc import Hashable, Sequence
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -100,8 +101,8 @@ def trajectories(
     subjects: int | Sequence[Hashable] | None = 20,
     overlay: str | None = None,
     seed: int = 0,
-    ax: "Axes | None" = None,
-) -> "Axes":
+    ax: Axes | None = None,
+) -> Axes:
     """One thin line per subject: ``col`` against ``time`` for a seeded sample of subjects.
 
     ``subjects`` is how many to draw (a sample drawn with ``seed``), ``None`` for all, or
@@ -153,8 +154,8 @@ def visit_schedule(
     report: pd.DataFrame | None = None,
     subjects: int | Sequence[Hashable] | None = 40,
     seed: int = 0,
-    ax: "Axes | None" = None,
-) -> "Axes":
+    ax: Axes | None = None,
+) -> Axes:
     """One horizontal row of occasion markers per subject along the time axis.
 
     With ``spacing`` (and optionally ``tolerance``), :func:`panelfx.check` is run and its

@@ -12,13 +12,14 @@ missing values), ``x`` (int), ``flag`` (bool), ``dose`` (non-negative float).
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import pandas as pd
 
 import panelfx as px
 from panelfx._transform import Transform
-from panelfx.testing.strategies import PanelCase, TIME_KINDS
+from panelfx.testing.strategies import TIME_KINDS, PanelCase
 
 NUMERIC_TIMES = ("int", "float")
 

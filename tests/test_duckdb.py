@@ -12,7 +12,7 @@ checks in the rolling tests.
 from __future__ import annotations
 
 import dataclasses
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 import pandas as pd

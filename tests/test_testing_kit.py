@@ -7,7 +7,8 @@ from __future__ import annotations
 import dataclasses
 import subprocess
 import sys
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd

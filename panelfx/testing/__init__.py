@@ -17,11 +17,14 @@ Use it to unit-test the derived variables of your own pipeline (see the README s
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import pandas as pd
 
 from .assertions import (
+    _fail,
+    _same,
     assert_constant_within,
     assert_derived_from,
     assert_non_decreasing_within,
@@ -29,7 +32,6 @@ from .assertions import (
     assert_panel_structure,
     assert_past_only,
 )
-from .assertions import _fail, _same
 from .reference import reference
 
 __all__ = [

@@ -12,7 +12,8 @@ All of them are vectorised (no loop over rows or subjects) except
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -175,7 +176,9 @@ def _assert_monotonic(frame: pd.DataFrame, col: str, id: str | Sequence[str], ti
             ("decreasing" if strict else "non-increasing")
         missing_note = "" if ignore_missing else " (missing values fail; ignore_missing=True skips them)"
         prev_rows = np.where(prev >= 0, p.original_positions(np.maximum(prev, 0)), -1)
-        prev_label = np.where(prev >= 0, np.asarray(frame.index, dtype=object)[np.maximum(prev_rows, 0)], None)
+        labels = np.asarray(frame.index, dtype=object)[np.maximum(prev_rows, 0)]
+        labels[prev < 0] = None
+        prev_label = labels
         _fail(
             f"column {col!r} is not {word} within subject in time order{missing_note}",
             frame, p.ordering.unsort(bad), p.id_cols, time,
@@ -268,7 +271,7 @@ def assert_past_only(
     >>> assert_past_only(df, px.lag("y", -1), id="pid", time="day")
     Traceback (most recent call last):
     ...
-    AssertionError: transform #1 (lag) declares that it uses later occasions (past_only is False): Lag(col='y', periods=-1, ...)
+    AssertionError: transform #1 (lag) declares that it uses later occasions (past_only is False): ...
     """
     __tracebackhide__ = True
     for i, tr in enumerate(transforms):

@@ -9,7 +9,8 @@
 
 from __future__ import annotations
 
-from typing import Any, NamedTuple, Sequence
+from collections.abc import Sequence
+from typing import Any, NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -140,11 +141,11 @@ def panels(
         frame = pd.DataFrame({"y": y, "x": np.array(x, dtype=np.int64), "flag": np.array(flag, dtype=bool),
                               "dose": dose})
     elif value_kind == "nullable":
-        frame = pd.DataFrame({"y": pd.array(np.where(np.isnan(y), None, y).tolist(), dtype="Float64"),
+        frame = pd.DataFrame({"y": pd.array([None if np.isnan(v) else v for v in y], dtype="Float64"),
                               "x": pd.array(x, dtype="Int64"), "flag": pd.array(flag, dtype="boolean"),
                               "dose": dose})
     else:
-        frame = pd.DataFrame({"y": pd.array(np.where(np.isnan(y), None, y).tolist(), dtype="double[pyarrow]"),
+        frame = pd.DataFrame({"y": pd.array([None if np.isnan(v) else v for v in y], dtype="double[pyarrow]"),
                               "x": pd.array(x, dtype="int64[pyarrow]"), "flag": pd.array(flag, dtype="bool[pyarrow]"),
                               "dose": dose})
 

@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 from .._columns import Take
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
 from ._common import baseline_index, check_rule, reference_columns, rule_words
+
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Baseline(Transform):

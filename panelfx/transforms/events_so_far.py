@@ -3,9 +3,8 @@
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Sequence
-
-import numpy as np
+from collections.abc import Sequence
+from typing import Any
 
 from .._panel import Panel
 from ._common import FlagHistory

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -45,17 +46,22 @@ class Lag(Transform):
     def inputs(self) -> tuple[str, ...]:
         return (self.col,)
 
+    @property
+    def _steps(self) -> int:
+        """Occasions back (negative: ahead); 1 for a lag by time, where it is not used."""
+        return 1 if self.periods is None else self.periods
+
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
         if self.offset is not None:
             return (f"{self.col}_lag_{span_label(self.offset)}",)
-        word = "lag" if self.periods > 0 else "lead"
-        return (f"{self.col}_{word}{abs(self.periods)}",)
+        word = "lag" if self._steps > 0 else "lead"
+        return (f"{self.col}_{word}{abs(self._steps)}",)
 
     @property
     def past_only(self) -> bool:
-        return self.offset is not None or self.periods > 0
+        return self.offset is not None or self._steps > 0
 
     def describe(self) -> str:
         if self.offset is not None:
@@ -64,14 +70,14 @@ class Lag(Transform):
             if self.tolerance is not None:
                 words += f", if that occasion is at most {span_words(self.tolerance)} older than the target time"
             return words
-        if self.periods > 0:
-            return f"value of {self.col!r} {self.periods} occasion(s) earlier in the subject"
-        return f"value of {self.col!r} {-self.periods} occasion(s) later in the subject (uses the future)"
+        if self._steps > 0:
+            return f"value of {self.col!r} {self._steps} occasion(s) earlier in the subject"
+        return f"value of {self.col!r} {-self._steps} occasion(s) later in the subject (uses the future)"
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         if self.offset is None:
-            return [Take(self.col, K.shift_index(s, self.periods))]
+            return [Take(self.col, K.shift_index(s, self._steps))]
         offset = panel.span(self.offset, "offset")
         # last occasion at or before t - offset: one before the first one after it
         src = panel.first_at_or_after(panel.axis.back(offset, strict=True)) - 1

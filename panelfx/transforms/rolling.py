@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as _dt
-from typing import Any, Sequence
+from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 
@@ -82,16 +83,18 @@ class Rolling(Transform):
         return True
 
     def describe(self) -> str:
+        least = max(self.min_valid, 2 if self.stat in ("std", "var") else 1)
         return (f"{_WORDS[self.stat]} of {self.col!r} over {self._window_words()}; non-missing values only, "
                 + ("never missing" if self.stat == "count" else
-                   f"missing when the window has fewer than {max(self.min_valid, 2 if self.stat in ('std', 'var') else 1)} "
-                   f"non-missing value(s)"))
+                   f"missing when the window has fewer than {least} non-missing value(s)"))
 
     def _window_words(self) -> str:
         now = not self.exclude_current
         if self.occasions is not None:
             k = self.occasions
-            return f"the last {k} occasion(s) up to the current one" if now else f"the {k} occasion(s) before the current one"
+            if now:
+                return f"the last {k} occasion(s) up to the current one"
+            return f"the {k} occasion(s) before the current one"
         if self.span is None:
             return "all occasions up to the current one" if now else "all earlier occasions"
         left = "[" if self.closed in ("both", "left") else "("
@@ -200,5 +203,6 @@ def rolling(
     3    1  120  138.0        138.0         138.0                      2
     4    2    0  160.0        160.0         160.0                      0
     """
-    return Rolling(col=col, stat=stat, occasions=occasions, span=span, closed=closed, min_valid=min_valid,
-                   exclude_current=exclude_current, name=name)
+    # a timedelta span becomes text such as "90D" in __post_init__, so the stored option stays plain
+    return Rolling(col=col, stat=stat, occasions=occasions, span=span,  # type: ignore[arg-type]
+                   closed=closed, min_valid=min_valid, exclude_current=exclude_current, name=name)

@@ -20,15 +20,16 @@ from __future__ import annotations
 import importlib
 import math
 import pkgutil
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any, Callable, Sequence
+from typing import Any
 
 import pandas as pd
 
 from ..._transform import Transform
 
 #: type_name -> function(transform, subject) returning one list of values per output.
-REFERENCES: dict[str, Callable[[Any, "Subject"], list[list[Any]]]] = {}
+REFERENCES: dict[str, Callable[[Any, Subject], list[list[Any]]]] = {}
 
 #: nanoseconds per unit, written out again here on purpose (independent of the engine).
 _NS = {"ns": 1, "us": 1e3, "ms": 1e6, "s": 1e9, "min": 60e9, "h": 3600e9, "D": 86400e9,
@@ -104,6 +105,7 @@ def _load_all() -> None:
 def missing_references() -> list[str]:
     """Registered transform types (``panelfx._transform.REGISTRY``) that have no reference."""
     import panelfx  # noqa: F401  (importing the package registers every transform)
+
     from ..._transform import REGISTRY
 
     _load_all()
