@@ -138,23 +138,23 @@ class PanelfxEngine(Engine):
     name = "panelfx"
 
     def _transforms(self) -> dict[str, Any]:
-        import panelfx as px
+        import panelfx as pfx
 
         out: dict[str, Any] = {
-            "baseline": lambda: px.baseline("y"),
-            "change_from_baseline": lambda: px.change_from_baseline("y"),
-            "change_from_previous": lambda: px.change_from_previous("y"),
-            "lag": lambda: px.lag("y"),
+            "baseline": lambda: pfx.baseline("y"),
+            "change_from_baseline": lambda: pfx.change_from_baseline("y"),
+            "change_from_previous": lambda: pfx.change_from_previous("y"),
+            "lag": lambda: pfx.lag("y"),
         }
         # Transforms written by other work in progress are wired in when they exist.
-        if hasattr(px, "cumulative"):
-            out["cumulative_sum"] = lambda: px.cumulative("dose", method="sum")
-            out["cumulative_area"] = lambda: px.cumulative("dose", method="trapezoid")
-        if hasattr(px, "time_since"):
-            out["time_since"] = lambda: px.time_since("event", which="last")
-        if hasattr(px, "rolling"):
-            out["rolling_90"] = lambda: px.rolling("y", stat="mean", span=SPAN)
-            out["rolling_3"] = lambda: px.rolling("y", stat="mean", occasions=OCCASIONS)
+        if hasattr(pfx, "cumulative"):
+            out["cumulative_sum"] = lambda: pfx.cumulative("dose", method="sum")
+            out["cumulative_area"] = lambda: pfx.cumulative("dose", method="trapezoid")
+        if hasattr(pfx, "time_since"):
+            out["time_since"] = lambda: pfx.time_since("event", which="last")
+        if hasattr(pfx, "rolling"):
+            out["rolling_90"] = lambda: pfx.rolling("y", stat="mean", span=SPAN)
+            out["rolling_3"] = lambda: pfx.rolling("y", stat="mean", occasions=OCCASIONS)
         return out
 
     def available(self) -> list[str]:
@@ -164,10 +164,10 @@ class PanelfxEngine(Engine):
         return _pandas_frame(data)
 
     def run(self, frame: Any, keys: list[str]) -> Any:
-        import panelfx as px
+        import panelfx as pfx
 
         makers = self._transforms()
-        return px.derive(frame, *(makers[k]() for k in keys), id="id", time="t")
+        return pfx.derive(frame, *(makers[k]() for k in keys), id="id", time="t")
 
     def extract(self, result: Any, keys: list[str]) -> dict[str, np.ndarray]:
         makers = self._transforms()

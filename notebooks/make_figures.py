@@ -12,7 +12,7 @@ import matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 
-import panelfx as px  # noqa: E402
+import panelfx as pfx  # noqa: E402
 from panelfx import demo, plot  # noqa: E402
 
 ID = ["site", "subject"]
@@ -21,8 +21,8 @@ OUT = Path(__file__).resolve().parent / "figures" / "demo_cohort.png"
 
 def main() -> Path:
     df = demo.cohort(300, seed=2026)
-    out = px.derive(df, px.rolling("sbp", "mean", span="90D"), id=ID, time="visit_date")
-    report = px.check(df, id=ID, time="visit_date", spacing="30D")
+    out = pfx.derive(df, pfx.rolling("sbp", "mean", span="90D"), id=ID, time="visit_date")
+    report = pfx.check(df, id=ID, time="visit_date", spacing="30D")
     fig, (left, right) = plt.subplots(1, 2, figsize=(12, 4.2))
     plot.trajectories(out, "sbp", id=ID, time="day", subjects=6, overlay="sbp_mean_90D", seed=1, ax=left)
     plot.visit_schedule(df, id=ID, time="visit_date", report=report, subjects=25, seed=1, ax=right)

@@ -2,9 +2,9 @@
 
 Declare the panel once (``id``, ``time``), pass transforms, get a tidy frame back:
 
->>> import pandas as pd, panelfx as px
+>>> import pandas as pd, panelfx as pfx
 >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
->>> px.derive(df, px.baseline("sbp"), px.change_from_baseline("sbp"), id="pid", time="day")
+>>> pfx.derive(df, pfx.baseline("sbp"), pfx.change_from_baseline("sbp"), id="pid", time="day")
    pid  day    sbp  sbp_baseline  sbp_change
 0    1    0  150.0         150.0         0.0
 1    1   14  142.0         150.0        -8.0
@@ -13,7 +13,7 @@ Declare the panel once (``id``, ``time``), pass transforms, get a tidy frame bac
 
 from __future__ import annotations
 
-from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.px)
+from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.pfx)
 from ._transform import Transform
 from .check import check
 from .derivation import Derivation, DerivationFileError

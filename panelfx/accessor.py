@@ -1,24 +1,24 @@
-"""``DataFrame.px``: the panelfx functions as methods, for notebooks and method chains.
+"""``DataFrame.pfx``: the panelfx functions as methods, for notebooks and method chains.
 
 Registered when :mod:`panelfx` is imported.  Every method delegates to the function of
 the same name, so the results are identical:
 
-- ``df.px.derive(*transforms, id=, time=, unit=)`` is :func:`panelfx.derive`;
-- ``df.px.check(id=, time=, ...)`` is :func:`panelfx.check`;
-- ``df.px.apply(derivation)`` is :meth:`panelfx.Derivation.apply` (a derivation, or
+- ``df.pfx.derive(*transforms, id=, time=, unit=)`` is :func:`panelfx.derive`;
+- ``df.pfx.check(id=, time=, ...)`` is :func:`panelfx.check`;
+- ``df.pfx.apply(derivation)`` is :meth:`panelfx.Derivation.apply` (a derivation, or
   the path of a saved one);
-- ``df.px.dictionary()`` and ``df.px.derivation`` read back the provenance that
+- ``df.pfx.dictionary()`` and ``df.pfx.derivation`` read back the provenance that
   ``apply`` recorded in ``df.attrs["panelfx"]``.
 
->>> import pandas as pd, panelfx as px
+>>> import pandas as pd, panelfx as pfx
 >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
->>> out = df.px.apply(px.Derivation(px.change_from_baseline("sbp"), id="pid", time="day"))
+>>> out = df.pfx.apply(pfx.Derivation(pfx.change_from_baseline("sbp"), id="pid", time="day"))
 >>> out
    pid  day    sbp  sbp_change
 0    1    0  150.0         0.0
 1    1   14  142.0        -8.0
 2    2    0  138.0         0.0
->>> out.px.dictionary()[["column", "transform", "sources", "dtype"]]
+>>> out.pfx.dictionary()[["column", "transform", "sources", "dtype"]]
        column             transform sources    dtype
 0  sbp_change  change_from_baseline     sbp  float64
 """
@@ -34,12 +34,12 @@ import pandas as pd
 from ._transform import Transform
 from .errors import OptionError
 
-#: The accessor's name: ``frame.px``, like the usual ``import panelfx as px``.
-NAME = "px"
+#: The accessor's name: ``frame.pfx``, like the usual ``import panelfx as pfx``.
+NAME = "pfx"
 
 
 class PanelAccessor:
-    """panelfx methods on a DataFrame (``frame.px``)."""
+    """panelfx methods on a DataFrame (``frame.pfx``)."""
 
     def __init__(self, frame: pd.DataFrame) -> None:
         self._frame = frame

@@ -60,9 +60,9 @@ def check(
 
     Missing columns and a time column of text still raise, as in :func:`derive`.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 31, 95, 0, 0]})
-    >>> px.check(df, id="pid", time="day", spacing=30, tolerance=4)
+    >>> pfx.check(df, id="pid", time="day", spacing=30, tolerance=4)
          problem severity  id   row  time                                          detail
     0  duplicate    fatal   2     3     0                    2 rows share this (id, time)
     1  duplicate    fatal   2     4     0                    2 rows share this (id, time)

@@ -199,23 +199,23 @@ TIME = "visit_date"
 
 def history_transforms() -> list:
     """The demo's history variables, as one list for a single :func:`panelfx.derive` call."""
-    import panelfx as px
+    import panelfx as pfx
 
     return [
-        px.baseline("sbp", rule="last_before", reference="treat_start"),
-        px.change_from_baseline("sbp", rule="last_before", reference="treat_start"),
-        px.change_from_previous("sbp"),
-        px.lag("dose_mg"),
-        px.cumulative("dose_mg", "step", name="dose_total_mg"),  # daily dose held until the next visit
-        px.time_since("dizzy"),
-        px.rolling("sbp", "mean", span="90D"),
-        px.within_between("dose_mg"),
+        pfx.baseline("sbp", rule="last_before", reference="treat_start"),
+        pfx.change_from_baseline("sbp", rule="last_before", reference="treat_start"),
+        pfx.change_from_previous("sbp"),
+        pfx.lag("dose_mg"),
+        pfx.cumulative("dose_mg", "step", name="dose_total_mg"),  # daily dose held until the next visit
+        pfx.time_since("dizzy"),
+        pfx.rolling("sbp", "mean", span="90D"),
+        pfx.within_between("dose_mg"),
     ]
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """``python -m panelfx demo [--subjects N] [--seed S] [--rows R]``."""
-    import panelfx as px
+    import panelfx as pfx
 
     parser = argparse.ArgumentParser(prog="python -m panelfx demo",
                                      description="Run panelfx on an invented hypertension clinic cohort.")
@@ -236,7 +236,7 @@ def main(argv: Sequence[str] | None = None) -> int:
           f"between-subject {truth['between_effect']:+g} mmHg per mg.")
 
     print("\n== 1. panelfx.check(frame, id=['site', 'subject'], time='visit_date', spacing='30D')")
-    report = px.check(df, id=ID, time=TIME, spacing="30D")
+    report = pfx.check(df, id=ID, time=TIME, spacing="30D")
     if report.empty:
         print("no problems found")
     else:
@@ -248,7 +248,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     transforms = history_transforms()
     print(f"\n== 2. panelfx.derive with {len(transforms)} transforms in one call")
-    out = px.derive(df, *transforms, id=ID, time=TIME)
+    out = pfx.derive(df, *transforms, id=ID, time=TIME)
     print(f"{len(out.columns) - len(df.columns)} columns added; the first rows, sorted for reading:")
     if args.rows > 0:
         # the inputs that matter for the derived columns, then the derived columns

@@ -83,17 +83,17 @@ class Derivation:
     transforms is checked when the derivation is built: a transform may use a column made
     by an earlier one, never by a later one, and no two transforms may make the same column.
 
-    >>> import pandas as pd, panelfx as px
-    >>> d = px.Derivation(px.baseline("sbp"), px.change_from_baseline("sbp"), id="pid", time="day")
+    >>> import pandas as pd, panelfx as pfx
+    >>> d = pfx.Derivation(pfx.baseline("sbp"), pfx.change_from_baseline("sbp"), id="pid", time="day")
     >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 14, 0], "sbp": [150.0, 142.0, 138.0]})
     >>> d.apply(df)
        pid  day    sbp  sbp_baseline  sbp_change
     0    1    0  150.0         150.0         0.0
     1    1   14  142.0         150.0        -8.0
     2    2    0  138.0         138.0         0.0
-    >>> px.Derivation.from_json(d.to_json()) == d
+    >>> pfx.Derivation.from_json(d.to_json()) == d
     True
-    >>> d.extend(px.lag("sbp_change")).outputs()
+    >>> d.extend(pfx.lag("sbp_change")).outputs()
     ('sbp_baseline', 'sbp_change', 'sbp_change_lag1')
     """
 
@@ -199,8 +199,8 @@ class Derivation:
         ``time_unit`` is the unit of durations, rates and areas: ``unit`` (default "D",
         days) for datetime times, the time column's own units for numeric times.
 
-        >>> import panelfx as px
-        >>> d = px.Derivation(px.baseline("sbp"), px.lag("sbp_baseline"), id="pid", time="day")
+        >>> import panelfx as pfx
+        >>> d = pfx.Derivation(pfx.baseline("sbp"), pfx.lag("sbp_baseline"), id="pid", time="day")
         >>> d.dictionary()[["column", "step", "transform", "sources", "past_only"]]
                      column  step transform       sources  past_only
         0      sbp_baseline     1  baseline           sbp      False

@@ -94,10 +94,10 @@ def derive(
     missing id or time, duplicate (id, time), a time column of text, text where numbers
     are needed, or an output name that already exists.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [2, 1, 1], "day": [0, 7, 0], "hb": [13.1, 12.0, 12.5]},
     ...                   index=["r1", "r2", "r3"])
-    >>> df.pipe(px.derive, px.lag("hb"), px.change_from_baseline("hb"), id="pid", time="day")
+    >>> df.pipe(pfx.derive, pfx.lag("hb"), pfx.change_from_baseline("hb"), id="pid", time="day")
         pid  day    hb  hb_lag1  hb_change
     r1    2    0  13.1      NaN        0.0
     r2    1    7  12.0     12.5       -0.5

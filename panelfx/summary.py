@@ -40,10 +40,10 @@ def subject_summary(
     missing (``<col>_n`` is 0); with one, the slope is missing and the area 0.  Subjects
     come in order of first appearance in ``frame``; the index is 0, 1, 2, ...
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 10, 20, 0, 5],
     ...                    "hb": [12.0, 13.0, 15.0, 11.0, None]})
-    >>> px.subject_summary(df, "hb", id="pid", time="day")
+    >>> pfx.subject_summary(df, "hb", id="pid", time="day")
        pid  n_occasions  first_time  last_time  follow_up  hb_n  hb_first  hb_last    hb_mean  hb_slope  hb_auc
     0    1            3           0         20       20.0     3      12.0     15.0  13.333333      0.15   265.0
     1    2            2           0          5        5.0     1      11.0     11.0  11.000000       NaN     0.0

@@ -17,7 +17,7 @@ from typing import Any
 
 import pandas as pd
 
-import panelfx as px
+import panelfx as pfx
 from panelfx._transform import Transform
 from panelfx.testing.strategies import TIME_KINDS, PanelCase
 
@@ -86,90 +86,90 @@ def spans(label: str, make: Callable[[Any], Transform], number: float, text: str
 def _build() -> dict[str, list[Entry]]:
     cat: dict[str, list[Entry]] = {}
     cat["baseline"] = [
-        fixed(px.baseline("y"), constant=(0,)),
-        fixed(px.baseline("y", "first"), constant=(0,)),
-        fixed(px.baseline("x", "first_valid"), constant=(0,)),
-        fixed(px.baseline("flag"), constant=(0,)),
-        fixed(px.baseline("y", "last_before", reference=10), time_kinds=NUMERIC_TIMES, constant=(0,)),
-        fixed(px.baseline("y", "last_before", reference="ref_t"), prepare=add_reference_time, constant=(0,)),
+        fixed(pfx.baseline("y"), constant=(0,)),
+        fixed(pfx.baseline("y", "first"), constant=(0,)),
+        fixed(pfx.baseline("x", "first_valid"), constant=(0,)),
+        fixed(pfx.baseline("flag"), constant=(0,)),
+        fixed(pfx.baseline("y", "last_before", reference=10), time_kinds=NUMERIC_TIMES, constant=(0,)),
+        fixed(pfx.baseline("y", "last_before", reference="ref_t"), prepare=add_reference_time, constant=(0,)),
     ]
     cat["change_from_baseline"] = [
-        fixed(px.change_from_baseline("y")),
-        fixed(px.change_from_baseline("y", "percent", after_baseline_only=True)),
-        fixed(px.change_from_baseline("y", "ratio", rule="first")),
-        fixed(px.change_from_baseline("x", "difference")),
-        fixed(px.change_from_baseline("y", rule="last_before", reference="ref_t", after_baseline_only=True),
+        fixed(pfx.change_from_baseline("y")),
+        fixed(pfx.change_from_baseline("y", "percent", after_baseline_only=True)),
+        fixed(pfx.change_from_baseline("y", "ratio", rule="first")),
+        fixed(pfx.change_from_baseline("x", "difference")),
+        fixed(pfx.change_from_baseline("y", rule="last_before", reference="ref_t", after_baseline_only=True),
               prepare=add_reference_time),
     ]
     cat["change_from_previous"] = [
-        fixed(px.change_from_previous("y")),
-        fixed(px.change_from_previous("y", "percent")),
-        fixed(px.change_from_previous("y", "rate", skip_missing=True)),
-        fixed(px.change_from_previous("y", "difference", skip_missing=True)),
-        fixed(px.change_from_previous("dose", "rate")),
+        fixed(pfx.change_from_previous("y")),
+        fixed(pfx.change_from_previous("y", "percent")),
+        fixed(pfx.change_from_previous("y", "rate", skip_missing=True)),
+        fixed(pfx.change_from_previous("y", "difference", skip_missing=True)),
+        fixed(pfx.change_from_previous("dose", "rate")),
     ]
     cat["lag"] = [
-        fixed(px.lag("y")),
-        fixed(px.lag("y", 2)),
-        fixed(px.lag("x", -1)),
-        fixed(px.lag("flag", 1)),
-        spans("lag offset", lambda s: px.lag("y", offset=s), 10, "10D"),
-        Entry("lag offset+tolerance", lambda num: px.lag("x", offset=10 if num else "10D",
+        fixed(pfx.lag("y")),
+        fixed(pfx.lag("y", 2)),
+        fixed(pfx.lag("x", -1)),
+        fixed(pfx.lag("flag", 1)),
+        spans("lag offset", lambda s: pfx.lag("y", offset=s), 10, "10D"),
+        Entry("lag offset+tolerance", lambda num: pfx.lag("x", offset=10 if num else "10D",
                                                          tolerance=5 if num else "5D")),
-        Entry("lag offset, tolerance 0", lambda num: px.lag("flag", offset=3 if num else "3D",
+        Entry("lag offset, tolerance 0", lambda num: pfx.lag("flag", offset=3 if num else "3D",
                                                             tolerance=0 if num else "0D")),
     ]
     cat["cumulative"] = [
-        fixed(px.cumulative("dose"), non_decreasing=(0,)),
-        fixed(px.cumulative("dose", "step"), non_decreasing=(0,)),
-        fixed(px.cumulative("dose", "trapezoid"), non_decreasing=(0,)),
-        fixed(px.cumulative("y")),
-        fixed(px.cumulative("y", missing="propagate")),
-        fixed(px.cumulative("y", "step", missing="propagate")),
-        fixed(px.cumulative("y", "trapezoid")),
-        spans("cumulative restart", lambda s: px.cumulative("dose", "step", restart_after=s), 15, "15D"),
+        fixed(pfx.cumulative("dose"), non_decreasing=(0,)),
+        fixed(pfx.cumulative("dose", "step"), non_decreasing=(0,)),
+        fixed(pfx.cumulative("dose", "trapezoid"), non_decreasing=(0,)),
+        fixed(pfx.cumulative("y")),
+        fixed(pfx.cumulative("y", missing="propagate")),
+        fixed(pfx.cumulative("y", "step", missing="propagate")),
+        fixed(pfx.cumulative("y", "trapezoid")),
+        spans("cumulative restart", lambda s: pfx.cumulative("dose", "step", restart_after=s), 15, "15D"),
     ]
     cat["carry_forward"] = [
-        fixed(px.carry_forward("y")),
-        fixed(px.carry_forward("y", limit=1)),
-        spans("carry_forward max_span", lambda s: px.carry_forward("y", max_span=s), 20, "20D"),
-        Entry("carry_forward both limits", lambda num: px.carry_forward("y", limit=2, max_span=30 if num
+        fixed(pfx.carry_forward("y")),
+        fixed(pfx.carry_forward("y", limit=1)),
+        spans("carry_forward max_span", lambda s: pfx.carry_forward("y", max_span=s), 20, "20D"),
+        Entry("carry_forward both limits", lambda num: pfx.carry_forward("y", limit=2, max_span=30 if num
                                                                          else "30D")),
-        fixed(px.carry_forward("flag")),
+        fixed(pfx.carry_forward("flag")),
     ]
     cat["events_so_far"] = [
-        fixed(px.events_so_far("flag"), non_decreasing=(0,)),
-        fixed(px.events_so_far("flag", include_current=False), non_decreasing=(0,)),
-        fixed(px.events_so_far("x"), non_decreasing=(0,)),
+        fixed(pfx.events_so_far("flag"), non_decreasing=(0,)),
+        fixed(pfx.events_so_far("flag", include_current=False), non_decreasing=(0,)),
+        fixed(pfx.events_so_far("x"), non_decreasing=(0,)),
     ]
     cat["ever"] = [
-        fixed(px.ever("flag"), non_decreasing=(0,)),
-        fixed(px.ever("flag", include_current=False), non_decreasing=(0,)),
-        fixed(px.ever("y")),
+        fixed(pfx.ever("flag"), non_decreasing=(0,)),
+        fixed(pfx.ever("flag", include_current=False), non_decreasing=(0,)),
+        fixed(pfx.ever("y")),
     ]
     cat["time_since"] = [
-        fixed(px.time_since("flag")),
-        fixed(px.time_since("flag", "first"), non_decreasing=(0,)),
-        fixed(px.time_since("flag", include_current=False)),
-        fixed(px.time_since("x", "first", include_current=False)),
+        fixed(pfx.time_since("flag")),
+        fixed(pfx.time_since("flag", "first"), non_decreasing=(0,)),
+        fixed(pfx.time_since("flag", include_current=False)),
+        fixed(pfx.time_since("x", "first", include_current=False)),
     ]
-    cat["gap"] = [fixed(px.gap())]
-    cat["occasion"] = [fixed(px.occasion(), non_decreasing=(0,))]
-    cat["time_since_baseline"] = [fixed(px.time_since_baseline(), non_decreasing=(0,))]
+    cat["gap"] = [fixed(pfx.gap())]
+    cat["occasion"] = [fixed(pfx.occasion(), non_decreasing=(0,))]
+    cat["time_since_baseline"] = [fixed(pfx.time_since_baseline(), non_decreasing=(0,))]
     cat["within_between"] = [
-        fixed(px.within_between("y"), constant=(0,)),
-        fixed(px.within_between("y", "baseline"), constant=(0,)),
-        fixed(px.within_between("x"), constant=(0,)),
+        fixed(pfx.within_between("y"), constant=(0,)),
+        fixed(pfx.within_between("y", "baseline"), constant=(0,)),
+        fixed(pfx.within_between("x"), constant=(0,)),
     ]
     cat["rolling"] = [
-        fixed(px.rolling("y", occasions=3)),
-        fixed(px.rolling("y", "sum", occasions=2, exclude_current=True)),
-        fixed(px.rolling("y", "max")),
-        fixed(px.rolling("dose", "sum"), non_decreasing=(0,)),
-        spans("rolling span mean", lambda s: px.rolling("y", span=s), 20, "20D"),
-        spans("rolling span count both", lambda s: px.rolling("y", "count", span=s, closed="both"), 10, "10D"),
-        spans("rolling span std", lambda s: px.rolling("y", "std", span=s, min_valid=2), 30, "30D"),
-        spans("rolling span median left", lambda s: px.rolling("x", "median", span=s, closed="left"), 15,
+        fixed(pfx.rolling("y", occasions=3)),
+        fixed(pfx.rolling("y", "sum", occasions=2, exclude_current=True)),
+        fixed(pfx.rolling("y", "max")),
+        fixed(pfx.rolling("dose", "sum"), non_decreasing=(0,)),
+        spans("rolling span mean", lambda s: pfx.rolling("y", span=s), 20, "20D"),
+        spans("rolling span count both", lambda s: pfx.rolling("y", "count", span=s, closed="both"), 10, "10D"),
+        spans("rolling span std", lambda s: pfx.rolling("y", "std", span=s, min_valid=2), 30, "30D"),
+        spans("rolling span median left", lambda s: pfx.rolling("x", "median", span=s, closed="left"), 15,
               "15D"),
     ]
     return cat

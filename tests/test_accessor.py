@@ -1,11 +1,11 @@
-"""``DataFrame.px``: registered on import of panelfx and delegating to the same functions."""
+"""``DataFrame.pfx``: registered on import of panelfx and delegating to the same functions."""
 
 from __future__ import annotations
 
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 
 
 def _frame() -> pd.DataFrame:
@@ -15,34 +15,34 @@ def _frame() -> pd.DataFrame:
 
 
 def test_registered_on_import():
-    assert isinstance(pd.DataFrame().px, px.accessor.PanelAccessor)
+    assert isinstance(pd.DataFrame().pfx, pfx.accessor.PanelAccessor)
 
 
 def test_derive_and_check_delegate():
     df = _frame()
-    trs = (px.baseline("sbp"), px.lag("sbp"))
-    pd.testing.assert_frame_equal(df.px.derive(*trs, id="pid", time="day"), px.derive(df, *trs, id="pid", time="day"))
+    trs = (pfx.baseline("sbp"), pfx.lag("sbp"))
+    pd.testing.assert_frame_equal(df.pfx.derive(*trs, id="pid", time="day"), pfx.derive(df, *trs, id="pid", time="day"))
     dup = pd.concat([df, df.iloc[[0]]])
-    pd.testing.assert_frame_equal(dup.px.check(id="pid", time="day", notes=True),
-                                  px.check(dup, id="pid", time="day", notes=True))
-    with pytest.raises(px.DuplicateOccasionError):
-        dup.px.derive(*trs, id="pid", time="day")
+    pd.testing.assert_frame_equal(dup.pfx.check(id="pid", time="day", notes=True),
+                                  pfx.check(dup, id="pid", time="day", notes=True))
+    with pytest.raises(pfx.DuplicateOccasionError):
+        dup.pfx.derive(*trs, id="pid", time="day")
 
 
 def test_apply_provenance_and_dictionary(tmp_path):
-    d = px.Derivation(px.change_from_baseline("sbp"), px.within_between("sbp"), id="pid", time="day")
-    out = _frame().px.apply(d)
+    d = pfx.Derivation(pfx.change_from_baseline("sbp"), pfx.within_between("sbp"), id="pid", time="day")
+    out = _frame().pfx.apply(d)
     pd.testing.assert_frame_equal(out, d.apply(_frame()))
-    assert out.px.derivation == d
-    pd.testing.assert_frame_equal(out.px.dictionary(), d.dictionary(_frame()))
-    assert out.px.provenance["derivation"] == d.to_dict()
+    assert out.pfx.derivation == d
+    pd.testing.assert_frame_equal(out.pfx.dictionary(), d.dictionary(_frame()))
+    assert out.pfx.provenance["derivation"] == d.to_dict()
     d.save(tmp_path / "d.json")
-    pd.testing.assert_frame_equal(_frame().px.apply(tmp_path / "d.json"), out)
-    pd.testing.assert_frame_equal(_frame().px.apply(str(tmp_path / "d.json")), out)
+    pd.testing.assert_frame_equal(_frame().pfx.apply(tmp_path / "d.json"), out)
+    pd.testing.assert_frame_equal(_frame().pfx.apply(str(tmp_path / "d.json")), out)
 
 
 def test_errors():
-    with pytest.raises(px.OptionError, match="no panelfx provenance"):
-        _frame().px.dictionary()
-    with pytest.raises(px.OptionError, match="needs a panelfx.Derivation"):
-        _frame().px.apply(px.lag("sbp"))
+    with pytest.raises(pfx.OptionError, match="no panelfx provenance"):
+        _frame().pfx.dictionary()
+    with pytest.raises(pfx.OptionError, match="needs a panelfx.Derivation"):
+        _frame().pfx.apply(pfx.lag("sbp"))

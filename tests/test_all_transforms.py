@@ -17,7 +17,7 @@ from catalogue import CATALOGUE, ENTRIES, NUMERIC_TIMES, Entry, numeric_time, re
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx._transform import REGISTRY, Transform
 from panelfx.testing import (
     assert_constant_within,
@@ -72,7 +72,7 @@ def test_matches_reference(type_name, data):
     """derive() equals the per-subject loop reference for each catalogued configuration."""
     entry, case, tr = _draw(data, type_name)
     frame = entry.frame(case)
-    got = px.derive(frame, tr, **case.keys)
+    got = pfx.derive(frame, tr, **case.keys)
     want = reference(frame, tr, **case.keys)
     assert_matches_reference(got, want, list(tr.outputs()), rtol=entry.rtol, id=case.id, time=case.time)
 
@@ -85,7 +85,7 @@ def test_invariants_and_past_only(type_name, data):
     when later occasions are cut off (assert_past_only)."""
     entry, case, tr = _draw(data, type_name)
     frame = entry.frame(case)
-    got = px.derive(frame, tr, **case.keys)
+    got = pfx.derive(frame, tr, **case.keys)
     for k in entry.constant:
         assert_constant_within(got, tr.outputs()[k], id=case.id)
     for k in entry.non_decreasing:
@@ -127,10 +127,10 @@ def test_many_transforms_in_one_derive(case):
         if seen.isdisjoint(tr.outputs()):
             chain.append(tr)
             seen.update(tr.outputs())
-    together = px.derive(frame, *chain, **case.keys)
+    together = pfx.derive(frame, *chain, **case.keys)
     assert list(together.columns) == [*frame.columns, *[c for tr in chain for c in tr.outputs()]]
     for tr in chain:
-        alone = px.derive(frame, tr, **case.keys)
+        alone = pfx.derive(frame, tr, **case.keys)
         assert_matches_reference(together, alone, list(tr.outputs()), rtol=0, atol=0, id=case.id, time=case.time)
 
 

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 from catalogue import ENTRIES, add_reference_time
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.errors import (
     ColumnExistsError,
     ColumnTypeError,
@@ -36,7 +36,7 @@ def visits() -> pd.DataFrame:
 
 
 def run(frame, *trs, **kw):
-    return px.derive(frame, *(trs or (px.change_from_previous("y"),)), **{"id": "pid", "time": "t", **kw})
+    return pfx.derive(frame, *(trs or (pfx.change_from_previous("y"),)), **{"id": "pid", "time": "t", **kw})
 
 
 # --------------------------------------------------------------------------- the frame
@@ -50,7 +50,7 @@ def test_missing_column(drop, what):
 
 def test_missing_column_made_by_a_later_transform():
     with pytest.raises(MissingColumnError, match=r"made by a later transform \(#2, baseline\): reorder them") as ei:
-        run(visits(), px.lag("y_baseline"), px.baseline("y"))
+        run(visits(), pfx.lag("y_baseline"), pfx.baseline("y"))
     assert ei.value.column == "y_baseline"
 
 
@@ -122,32 +122,32 @@ def test_output_name_exists():
 
 def test_two_transforms_with_the_same_output_name():
     with pytest.raises(ColumnExistsError, match="also made by transform #1") as ei:
-        run(visits(), px.lag("y", name="prev"), px.lag("x", name="prev"))
+        run(visits(), pfx.lag("y", name="prev"), pfx.lag("x", name="prev"))
     assert ei.value.column == "prev"
 
 
 def test_reference_time_that_varies_within_subject():
     df = visits().assign(start=[0, 5, 6, 0, 5, 0])
     with pytest.raises(NotConstantError, match="reference time varies within subject") as ei:
-        run(df, px.baseline("y", "last_before", reference="start"))
+        run(df, pfx.baseline("y", "last_before", reference="start"))
     assert (ei.value.column, ei.value.count, ei.value.ids) == ("start", 2, [1])  # first (t=0) says 6, two rows 5
 
 
 # --------------------------------------------------------------------------- options
 BAD_OPTIONS = [
-    (lambda: px.lag("y", 0), "periods must be a non-zero integer, got 0"),
-    (lambda: px.lag("y", 1.5), "periods must be"),
-    (lambda: px.lag("y", True), "periods must be"),
-    (lambda: px.baseline("y", "earliest"), "rule must be one of"),
-    (lambda: px.baseline("y", "last_before"), "needs reference="),
-    (lambda: px.baseline("y", reference="start"), "used only with rule='last_before'"),
-    (lambda: px.baseline("y", "last_before", reference=[1]), "reference must be a column name or a number"),
-    (lambda: px.change_from_baseline("y", "log"), "kind must be one of"),
-    (lambda: px.change_from_baseline("y", after_baseline_only="yes"), "after_baseline_only must be True or False"),
-    (lambda: px.change_from_previous("y", "ratio"), "kind must be one of"),
-    (lambda: px.change_from_previous("y", skip_missing=1), "skip_missing must be True or False"),
-    (lambda: px.lag(3), "col must be a column name"),
-    (lambda: px.baseline("y", name=""), "name must be a column name"),
+    (lambda: pfx.lag("y", 0), "periods must be a non-zero integer, got 0"),
+    (lambda: pfx.lag("y", 1.5), "periods must be"),
+    (lambda: pfx.lag("y", True), "periods must be"),
+    (lambda: pfx.baseline("y", "earliest"), "rule must be one of"),
+    (lambda: pfx.baseline("y", "last_before"), "needs reference="),
+    (lambda: pfx.baseline("y", reference="start"), "used only with rule='last_before'"),
+    (lambda: pfx.baseline("y", "last_before", reference=[1]), "reference must be a column name or a number"),
+    (lambda: pfx.change_from_baseline("y", "log"), "kind must be one of"),
+    (lambda: pfx.change_from_baseline("y", after_baseline_only="yes"), "after_baseline_only must be True or False"),
+    (lambda: pfx.change_from_previous("y", "ratio"), "kind must be one of"),
+    (lambda: pfx.change_from_previous("y", skip_missing=1), "skip_missing must be True or False"),
+    (lambda: pfx.lag(3), "col must be a column name"),
+    (lambda: pfx.baseline("y", name=""), "name must be a column name"),
 ]
 
 
@@ -193,16 +193,16 @@ def test_wrong_unit_for_datetimes():
     with pytest.raises(OptionError, match="unit must be one of"):
         run(df, unit="fortnight")
     with pytest.raises(OptionError, match="is a number but time column 't' holds datetime"):
-        run(df, px.baseline("y", "last_before", reference=3))
+        run(df, pfx.baseline("y", "last_before", reference=3))
 
 
 def test_not_a_transform_or_not_a_frame():
     with pytest.raises(OptionError, match="transform #2 is a str, not a panelfx transform"):
-        run(visits(), px.lag("y"), "lag")
+        run(visits(), pfx.lag("y"), "lag")
     with pytest.raises(TypeError, match="expected a pandas DataFrame"):
-        px.derive(visits().to_dict(), px.lag("y"), id="pid", time="t")
+        pfx.derive(visits().to_dict(), pfx.lag("y"), id="pid", time="t")
     with pytest.raises(OptionError, match="uses the id or time column"):
-        run(visits(), px.lag("t"))
+        run(visits(), pfx.lag("t"))
 
 
 def test_every_error_is_a_panel_error_and_a_builtin():
@@ -236,13 +236,13 @@ def test_input_frame_is_unchanged(type_name, entry, kind):
     frame = entry.frame(case)
     before = frame.copy(deep=True)
     tr = entry.make(PanelCase(frame, "pid", "t"))
-    out = px.derive(frame, tr, id="pid", time="t")
+    out = pfx.derive(frame, tr, id="pid", time="t")
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
     assert list(frame.columns) == list(before.columns) and frame.index.equals(before.index)
     assert list(out.columns) == [*before.columns, *tr.outputs()]
     pd.testing.assert_frame_equal(out[list(before.columns)], before, check_exact=True)
     with pytest.raises(ColumnExistsError):
-        px.derive(out, tr, id="pid", time="t")
+        pfx.derive(out, tr, id="pid", time="t")
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
 
 

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing import reference
 
 _PATH = Path(__file__).resolve().parent.parent / "benchmarks" / "run.py"
@@ -72,7 +72,7 @@ def test_disagreements_reports_values_and_missing_rows(bench):
 
 def test_running_sums_are_accurate_to_per_subject_sums(bench):
     data = bench.make_panel(400, seed=5)
-    out = px.derive(pd.DataFrame(data), px.cumulative("dose"), px.cumulative("dose", "trapezoid"),
+    out = pfx.derive(pd.DataFrame(data), pfx.cumulative("dose"), pfx.cumulative("dose", "trapezoid"),
                     id="id", time="t")
     exact = bench.per_subject_sums(data)
     assert bench.relative_error(out["dose_cum"].to_numpy(), exact["cumulative_sum"]) <= 1e-12

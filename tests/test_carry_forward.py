@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing import assert_matches_reference, reference
 from panelfx.testing.strategies import ALL_TIME_KINDS, VALUE_KINDS, panels
 from panelfx.transforms.carry_forward import CarryForward
@@ -19,16 +19,16 @@ NAN = math.nan
 
 
 def run(df, *trs, **kw):
-    return px.derive(df, *trs, id="pid", time="t", **kw)
+    return pfx.derive(df, *trs, id="pid", time="t", **kw)
 
 
 # ---------------------------------------------------------------------------- by hand
 def test_limits_by_hand():
     df = pd.DataFrame({"pid": [1] * 6 + [2, 2], "t": [0, 1, 2, 3, 10, 11, 0, 1],
                        "y": [NAN, 5.0, NAN, NAN, NAN, 7.0, NAN, NAN]})
-    out = run(df, px.carry_forward("y"), px.carry_forward("y", limit=2, name="lim2"),
-              px.carry_forward("y", max_span=2, name="span2"),
-              px.carry_forward("y", limit=1, max_span=5, name="both"))
+    out = run(df, pfx.carry_forward("y"), pfx.carry_forward("y", limit=2, name="lim2"),
+              pfx.carry_forward("y", max_span=2, name="span2"),
+              pfx.carry_forward("y", limit=1, max_span=5, name="both"))
     np.testing.assert_array_equal(out["y_filled"], [NAN, 5, 5, 5, 5, 7, NAN, NAN])
     np.testing.assert_array_equal(out["lim2"], [NAN, 5, 5, 5, NAN, 7, NAN, NAN])
     # t = 3 is exactly 2 after the value at t = 1: still carried
@@ -41,7 +41,7 @@ def test_keeps_dtype_unsorted_and_datetime_span():
                        "t": pd.to_datetime(["2024-02-20", "2024-01-01", "2024-01-05", "2024-01-01"]),
                        "grade": pd.Categorical(["III", "I", None, None], categories=["I", "II", "III"])},
                       index=[4, 3, 2, 1])
-    out = run(df, px.carry_forward("grade"), px.carry_forward("grade", max_span="30D", name="g30"))
+    out = run(df, pfx.carry_forward("grade"), pfx.carry_forward("grade", max_span="30D", name="g30"))
     def values(s):
         return [None if pd.isna(v) else v for v in s.tolist()]
 
@@ -52,11 +52,11 @@ def test_keeps_dtype_unsorted_and_datetime_span():
     assert list(out.index) == [4, 3, 2, 1]
     text = df.assign(grade=["x", None, None, "y"])
     # a in time order: 01-01 and 01-05 missing, before its only value: nothing to carry
-    assert values(run(text, px.carry_forward("grade"))["grade_filled"]) == ["x", None, None, "y"]
+    assert values(run(text, pfx.carry_forward("grade"))["grade_filled"]) == ["x", None, None, "y"]
 
 
 def test_options_round_trip():
-    tr = px.carry_forward("y", limit=3, max_span=pd.Timedelta(hours=12))
+    tr = pfx.carry_forward("y", limit=3, max_span=pd.Timedelta(hours=12))
     assert tr.max_span == "12h" and CarryForward(**tr.options()) == tr
     assert tr.past_only and "at most 3 occasion(s)" in tr.describe()
 
@@ -69,8 +69,8 @@ def test_matches_reference(case, limit, span):
     """Carry forward with and without limits equals the per-subject loop reference."""
     numeric = pd.api.types.is_numeric_dtype(case.frame[case.time].dtype)
     max_span = None if span is None else (span if numeric else f"{span}D")
-    tr = px.carry_forward("y", limit=limit, max_span=max_span)
-    got = px.derive(case.frame, tr, **case.keys)
+    tr = pfx.carry_forward("y", limit=limit, max_span=max_span)
+    got = pfx.derive(case.frame, tr, **case.keys)
     want = reference(case.frame, tr, **case.keys)
     assert_matches_reference(got, want, list(tr.outputs()))
 
@@ -87,19 +87,19 @@ def test_matches_reference(case, limit, span):
     ({"max_span": "90"}, "has no unit"),
 ])
 def test_bad_options(kw, words):
-    with pytest.raises(px.OptionError, match=words):
-        px.carry_forward("y", **kw)
+    with pytest.raises(pfx.OptionError, match=words):
+        pfx.carry_forward("y", **kw)
 
 
 def test_window_type_must_fit_the_time_column():
     numeric = pd.DataFrame({"pid": 1, "t": [0, 1], "y": [1.0, NAN]})
-    with pytest.raises(px.OptionError, match="max_span='90D' does not fit time column 't'"):
-        run(numeric, px.carry_forward("y", max_span="90D"))
+    with pytest.raises(pfx.OptionError, match="max_span='90D' does not fit time column 't'"):
+        run(numeric, pfx.carry_forward("y", max_span="90D"))
     dated = numeric.assign(t=pd.to_datetime(["2024-01-01", "2024-01-02"]))
-    with pytest.raises(px.OptionError, match="max_span=90 does not fit"):
-        run(dated, px.carry_forward("y", max_span=90))
+    with pytest.raises(pfx.OptionError, match="max_span=90 does not fit"):
+        run(dated, pfx.carry_forward("y", max_span=90))
 
 
 def test_missing_column():
-    with pytest.raises(px.MissingColumnError, match="'nope'"):
-        run(pd.DataFrame({"pid": 1, "t": [0, 1]}), px.carry_forward("nope"))
+    with pytest.raises(pfx.MissingColumnError, match="'nope'"):
+        run(pd.DataFrame({"pid": 1, "t": [0, 1]}), pfx.carry_forward("nope"))

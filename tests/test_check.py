@@ -6,19 +6,19 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.check import REPORT_COLUMNS
 
 
 def test_clean_panel_gives_empty_report():
     df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 30, 0]})
-    report = px.check(df, id="pid", time="day", spacing=30)
+    report = pfx.check(df, id="pid", time="day", spacing=30)
     assert report.empty and list(report.columns) == REPORT_COLUMNS
 
 
 def test_null_ids_times_and_duplicates():
     df = pd.DataFrame({"pid": [1, None, 2, 2, 2, 3], "day": [0, 5, 7, 7, 7, np.nan]}, index=list("abcdef"))
-    report = px.check(df, id="pid", time="day")
+    report = pfx.check(df, id="pid", time="day")
     assert report["problem"].tolist() == ["null_id", "null_time", "duplicate", "duplicate", "duplicate"]
     assert report["severity"].unique().tolist() == ["fatal"]
     assert report["row"].tolist() == ["b", "f", "c", "d", "e"]
@@ -31,7 +31,7 @@ def test_schedule_findings_with_datetimes():
     when = [day, day + pd.Timedelta("33D"), day + pd.Timedelta("52D"), day + pd.Timedelta("120D"),
             day, day + pd.Timedelta("30D"), day + pd.Timedelta("31D")]
     df = pd.DataFrame({"pid": ["p"] * 4 + ["q"] * 3, "when": when}, index=[10, 11, 12, 13, 20, 21, 22])
-    report = px.check(df, id="pid", time="when", spacing="30D", tolerance="5D")
+    report = pfx.check(df, id="pid", time="when", spacing="30D", tolerance="5D")
     got = list(zip(report["problem"], report["id"], report["row"], report["time"]))
     # p: 33 -> slot 1 (ok within 5 days), 52 -> slot 2 is 8 days early, 120 -> slot 4, slot 3 missed
     # q: 31 days matches slot 1 again -> extra
@@ -45,50 +45,50 @@ def test_schedule_findings_with_datetimes():
 
 def test_default_tolerance_is_a_quarter_of_spacing():
     df = pd.DataFrame({"pid": [1, 1, 1], "week": [0.0, 1.2, 2.3]})
-    report = px.check(df, id="pid", time="week", spacing=1)
+    report = pfx.check(df, id="pid", time="week", spacing=1)
     assert report["problem"].tolist() == ["late"]
     assert report["row"].tolist() == [2]
 
 
 def test_several_missed_occasions_in_one_gap():
     df = pd.DataFrame({"pid": [1, 1], "day": [0, 40]})
-    report = px.check(df, id="pid", time="day", spacing=10, tolerance=0)
+    report = pfx.check(df, id="pid", time="day", spacing=10, tolerance=0)
     assert report["problem"].tolist() == ["missed"] * 3
     assert report["time"].tolist() == [10.0, 20.0, 30.0]
 
 
 def test_notes_are_opt_in():
     df = pd.DataFrame({"pid": [2, 1, 1], "day": [0, 9, 0]})
-    assert px.check(df, id="pid", time="day").empty
-    notes = px.check(df, id="pid", time="day", notes=True)
+    assert pfx.check(df, id="pid", time="day").empty
+    notes = pfx.check(df, id="pid", time="day", notes=True)
     assert notes["problem"].tolist() == ["single_occasion", "not_in_order"]
     assert set(notes["severity"]) == {"note"}
 
 
 def test_multi_column_ids_are_tuples():
     df = pd.DataFrame({"site": ["a", "a"], "subj": [1, 1], "day": [3, 3]})
-    report = px.check(df, id=["site", "subj"], time="day")
+    report = pfx.check(df, id=["site", "subj"], time="day")
     assert report["id"].tolist() == [("a", 1), ("a", 1)]
 
 
 @pytest.mark.parametrize(
     "kwargs, error, message",
     [
-        ({"spacing": "30D"}, px.OptionError, "does not fit time column 'day', which holds numbers"),
-        ({"spacing": -3}, px.OptionError, "spacing must be positive"),
-        ({"spacing": 30, "tolerance": -1}, px.OptionError, "tolerance must not be negative"),
-        ({"tolerance": 2}, px.OptionError, "tolerance= needs spacing="),
+        ({"spacing": "30D"}, pfx.OptionError, "does not fit time column 'day', which holds numbers"),
+        ({"spacing": -3}, pfx.OptionError, "spacing must be positive"),
+        ({"spacing": 30, "tolerance": -1}, pfx.OptionError, "tolerance must not be negative"),
+        ({"tolerance": 2}, pfx.OptionError, "tolerance= needs spacing="),
     ],
 )
 def test_bad_options(kwargs, error, message):
     df = pd.DataFrame({"pid": [1, 1], "day": [0, 30]})
     with pytest.raises(error, match=message):
-        px.check(df, id="pid", time="day", **kwargs)
+        pfx.check(df, id="pid", time="day", **kwargs)
 
 
 def test_structural_errors_still_raise():
     df = pd.DataFrame({"pid": [1], "day": ["2025-01-01"]})
-    with pytest.raises(px.TimeTypeError, match="parsed first"):
-        px.check(df, id="pid", time="day")
-    with pytest.raises(px.MissingColumnError):
-        px.check(df, id="person", time="day")
+    with pytest.raises(pfx.TimeTypeError, match="parsed first"):
+        pfx.check(df, id="pid", time="day")
+    with pytest.raises(pfx.MissingColumnError):
+        pfx.check(df, id="person", time="day")

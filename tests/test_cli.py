@@ -20,7 +20,7 @@ import pandas as pd
 import pyarrow.parquet as pq
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 from panelfx import cli
 from panelfx.__main__ import main
 
@@ -38,8 +38,8 @@ def _cohort(n_subjects: int = 4, seed: int = 1) -> pd.DataFrame:
     })
 
 
-DERIVATION = px.Derivation(px.baseline("sbp"), px.change_from_baseline("sbp"), px.lag("sbp_change"),
-                           px.within_between("sbp"), id="pid", time="day", description="invented example")
+DERIVATION = pfx.Derivation(pfx.baseline("sbp"), pfx.change_from_baseline("sbp"), pfx.lag("sbp_change"),
+                           pfx.within_between("sbp"), id="pid", time="day", description="invented example")
 
 
 def _run(*args: str, console: bool = False, **kw) -> subprocess.CompletedProcess:
@@ -62,9 +62,9 @@ def test_saved_by_one_process_applied_by_another(tmp_path):
     Parquet out) gives the frame this process gets, with the provenance in the file's metadata."""
     _cohort().to_csv(tmp_path / "visits.csv", index=False)
     save = textwrap.dedent("""
-        import sys, panelfx as px
-        px.Derivation(px.baseline("sbp"), px.change_from_baseline("sbp"), px.lag("sbp_change"),
-                      px.within_between("sbp"), id="pid", time="day", description="invented example").save(sys.argv[1])
+        import sys, panelfx as pfx
+        pfx.Derivation(pfx.baseline("sbp"), pfx.change_from_baseline("sbp"), pfx.lag("sbp_change"),
+                      pfx.within_between("sbp"), id="pid", time="day", description="invented example").save(sys.argv[1])
     """)
     saved = subprocess.run([sys.executable, "-c", save, str(tmp_path / "d.json")], capture_output=True, text=True,
                            timeout=120)
@@ -74,7 +74,7 @@ def test_saved_by_one_process_applied_by_another(tmp_path):
     assert run.stdout == ""
     assert "wrote 12 rows, 9 columns to out.parquet" in run.stderr
 
-    here = px.Derivation.load(tmp_path / "d.json")
+    here = pfx.Derivation.load(tmp_path / "d.json")
     assert here == DERIVATION
     expected = here.apply(cli.read_frame(str(tmp_path / "visits.csv")))
     got = pd.read_parquet(tmp_path / "out.parquet")
@@ -82,12 +82,12 @@ def test_saved_by_one_process_applied_by_another(tmp_path):
 
     schema = pq.read_schema(tmp_path / "out.parquet")
     record = json.loads(schema.metadata[b"panelfx"])
-    assert px.Derivation.from_dict(record["derivation"]) == DERIVATION
+    assert pfx.Derivation.from_dict(record["derivation"]) == DERIVATION
     assert [r["column"] for r in record["dictionary"]] == list(DERIVATION.outputs())
     assert record["input"] == "visits.csv"
     field = json.loads(schema.field("sbp_change").metadata[b"panelfx"])
     assert field["transform"] == "change_from_baseline" and field["dtype"] == "float64"
-    assert got.px.derivation == DERIVATION  # pandas restores attrs from the file too
+    assert got.pfx.derivation == DERIVATION  # pandas restores attrs from the file too
 
 
 def test_check_exit_codes(tmp_path):
@@ -269,7 +269,7 @@ def test_failure_while_writing_in_process(files, capsys, monkeypatch):
 )
 def test_errors_are_one_line_with_exit_code_2(files, capsys, argv, message):
     (files / "broken.json").write_text(DERIVATION.to_json().replace('"periods": 1', '"periods": 0'))
-    px.Derivation(px.lag("dbp"), id="pid", time="day").save(files / "dbp.json")
+    pfx.Derivation(pfx.lag("dbp"), id="pid", time="day").save(files / "dbp.json")
     dup = _cohort()
     dup.loc[1, "day"] = 0
     dup.to_csv(files / "dup.csv", index=False)

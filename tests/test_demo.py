@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 from panelfx import demo
 from panelfx.__main__ import main as cli_main
 
@@ -77,7 +77,7 @@ def test_staggered_enrolment_and_day_counts_from_it(big):
 
 
 def test_visits_planned_every_30_days_with_irregularities(big):
-    report = px.check(big, id=ID, time="visit_date", spacing="30D")
+    report = pfx.check(big, id=ID, time="visit_date", spacing="30D")
     counts = report["problem"].value_counts()
     assert set(counts.index) == {"missed", "early", "late"}  # no duplicates, no fatal problems
     n = len(big)
@@ -186,7 +186,7 @@ def test_demo_command_runs_in_process(capsys):
 
 def test_demo_derive_matches_a_simple_recomputation():
     df = demo.cohort(30, seed=2)
-    out = px.derive(df, *demo.history_transforms(), id=ID, time="visit_date")
+    out = pfx.derive(df, *demo.history_transforms(), id=ID, time="visit_date")
     pd.testing.assert_frame_equal(out[df.columns], df)
     # last sbp on or before treatment start, recomputed with plain pandas
     pre = df[(df["visit_date"] <= df["treat_start"]) & df["sbp"].notna()].sort_values("visit_date")

@@ -12,7 +12,7 @@ from catalogue import ENTRIES, renamed
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.derivation import DICTIONARY_COLUMNS
 from panelfx.testing.strategies import TIME_KINDS, panels
 
@@ -29,9 +29,9 @@ def test_apply_is_derive_and_keeps_input():
     """apply gives what derive gives (same values, dtypes, index, row order) and leaves the input alone."""
     df = _frame()
     before = df.copy()
-    trs = (px.baseline("sbp"), px.change_from_baseline("sbp"), px.lag("sbp_change"), px.within_between("sbp"))
-    d = px.Derivation(*trs, id="pid", time="day")
-    pd.testing.assert_frame_equal(d.apply(df), px.derive(df, *trs, id="pid", time="day"))
+    trs = (pfx.baseline("sbp"), pfx.change_from_baseline("sbp"), pfx.lag("sbp_change"), pfx.within_between("sbp"))
+    d = pfx.Derivation(*trs, id="pid", time="day")
+    pd.testing.assert_frame_equal(d.apply(df), pfx.derive(df, *trs, id="pid", time="day"))
     pd.testing.assert_frame_equal(df, before)
     assert df.attrs == {}
 
@@ -52,17 +52,17 @@ def test_apply_equals_derive_on_generated_panels(data):
         if entry.prepare is not None:
             frame = entry.prepare(frame, case)
         chosen.append(renamed(entry.make(case), i))
-    d = px.Derivation(*chosen, id=case.id, time=case.time)
-    expected = px.derive(frame, *chosen, **case.keys)
+    d = pfx.Derivation(*chosen, id=case.id, time=case.time)
+    expected = pfx.derive(frame, *chosen, **case.keys)
     pd.testing.assert_frame_equal(d.apply(frame), expected)
 
 
 def test_order_is_checked_up_front():
     """A transform that needs a column made by a later one fails when the derivation is built,
     naming the column and both transforms."""
-    with pytest.raises(px.MissingColumnError, match=r"'sbp_change'.*#1 \(lag\).*later transform \(#2, "
+    with pytest.raises(pfx.MissingColumnError, match=r"'sbp_change'.*#1 \(lag\).*later transform \(#2, "
                                                     r"change_from_baseline\): reorder") as err:
-        px.Derivation(px.lag("sbp_change"), px.change_from_baseline("sbp"), id="pid", time="day")
+        pfx.Derivation(pfx.lag("sbp_change"), pfx.change_from_baseline("sbp"), id="pid", time="day")
     assert err.value.column == "sbp_change"
     assert isinstance(err.value, KeyError)
 
@@ -70,15 +70,15 @@ def test_order_is_checked_up_front():
 @pytest.mark.parametrize(
     ("transforms", "error", "match"),
     [
-        ((px.lag("sbp"), px.lag("sbp")), px.ColumnExistsError, r"'sbp_lag1' of transform #2 .* also made by transform #1"),
-        ((px.lag("day"),), px.OptionError, r"uses the id or time column 'day'"),
-        ((px.lag("sbp", name="pid"),), px.ColumnExistsError, r"'pid' .* is the id or time column"),
-        (("lag",), px.OptionError, r"transform #1 is a str, not a panelfx transform"),
+        ((pfx.lag("sbp"), pfx.lag("sbp")), pfx.ColumnExistsError, r"'sbp_lag1' of transform #2 .* also made by transform #1"),
+        ((pfx.lag("day"),), pfx.OptionError, r"uses the id or time column 'day'"),
+        ((pfx.lag("sbp", name="pid"),), pfx.ColumnExistsError, r"'pid' .* is the id or time column"),
+        (("lag",), pfx.OptionError, r"transform #1 is a str, not a panelfx transform"),
     ],
 )
 def test_bad_transform_lists(transforms, error, match):
     with pytest.raises(error, match=match):
-        px.Derivation(*transforms, id="pid", time="day")
+        pfx.Derivation(*transforms, id="pid", time="day")
 
 
 @pytest.mark.parametrize(
@@ -92,48 +92,48 @@ def test_bad_transform_lists(transforms, error, match):
     ],
 )
 def test_bad_declarations(kwargs, match):
-    with pytest.raises(px.OptionError, match=match):
-        px.Derivation(px.lag("sbp"), **kwargs)
+    with pytest.raises(pfx.OptionError, match=match):
+        pfx.Derivation(pfx.lag("sbp"), **kwargs)
 
 
 def test_missing_column_at_apply_names_it():
     """A column the frame lacks is reported before anything is computed."""
-    d = px.Derivation(px.lag("sbp"), px.baseline("dbp"), id="pid", time="day")
-    with pytest.raises(px.MissingColumnError, match=r"column 'dbp' needed by transform #2 \(baseline\)"):
+    d = pfx.Derivation(pfx.lag("sbp"), pfx.baseline("dbp"), id="pid", time="day")
+    with pytest.raises(pfx.MissingColumnError, match=r"column 'dbp' needed by transform #2 \(baseline\)"):
         d.apply(_frame())
 
 
 def test_immutable_hashable_and_equal():
-    d = px.Derivation(px.lag("sbp"), id=["site", "pid"], time="day", description="invented")
+    d = pfx.Derivation(pfx.lag("sbp"), id=["site", "pid"], time="day", description="invented")
     assert d.id == ("site", "pid") and d.id_cols == ["site", "pid"]
     with pytest.raises(dataclasses.FrozenInstanceError):
         d.time = "week"  # type: ignore[misc]
-    same = px.Derivation([px.lag("sbp")], id=("site", "pid"), time="day", description="invented")
+    same = pfx.Derivation([pfx.lag("sbp")], id=("site", "pid"), time="day", description="invented")
     assert d == same and hash(d) == hash(same)
-    assert d != px.Derivation(px.lag("sbp", 2), id=["site", "pid"], time="day", description="invented")
+    assert d != pfx.Derivation(pfx.lag("sbp", 2), id=["site", "pid"], time="day", description="invented")
     assert "Lag(col='sbp'" in repr(d)
 
 
 def test_extend_composes():
     """extend returns a new derivation; it may use the earlier outputs; the original is unchanged."""
-    base = px.Derivation(px.baseline("sbp"), id="pid", time="day", unit=None, description="invented")
-    more = base.extend(px.change_from_baseline("sbp"), px.Derivation(px.lag("sbp_change"), id="pid", time="day"))
+    base = pfx.Derivation(pfx.baseline("sbp"), id="pid", time="day", unit=None, description="invented")
+    more = base.extend(pfx.change_from_baseline("sbp"), pfx.Derivation(pfx.lag("sbp_change"), id="pid", time="day"))
     assert base.outputs() == ("sbp_baseline",)
     assert more.outputs() == ("sbp_baseline", "sbp_change", "sbp_change_lag1")
     assert more.description == "invented"
     assert more.inputs() == ("sbp",)
     pd.testing.assert_frame_equal(
         more.apply(_frame()),
-        px.derive(_frame(), *more.transforms, id="pid", time="day"),
+        pfx.derive(_frame(), *more.transforms, id="pid", time="day"),
     )
-    with pytest.raises(px.OptionError, match="cannot extend"):
-        base.extend(px.Derivation(px.lag("sbp"), id="pid", time="week"))
-    with pytest.raises(px.ColumnExistsError):
-        base.extend(px.baseline("sbp"))
+    with pytest.raises(pfx.OptionError, match="cannot extend"):
+        base.extend(pfx.Derivation(pfx.lag("sbp"), id="pid", time="week"))
+    with pytest.raises(pfx.ColumnExistsError):
+        base.extend(pfx.baseline("sbp"))
 
 
 def test_inputs_outputs_with_several_outputs():
-    d = px.Derivation(px.within_between("sbp"), px.lag("sbp_within"), px.baseline("dbp", "last_before",
+    d = pfx.Derivation(pfx.within_between("sbp"), pfx.lag("sbp_within"), pfx.baseline("dbp", "last_before",
                       reference="start"), id="pid", time="day")
     assert d.outputs() == ("sbp_between", "sbp_within", "sbp_within_lag1", "dbp_baseline")
     assert d.inputs() == ("sbp", "dbp", "start")
@@ -141,15 +141,15 @@ def test_inputs_outputs_with_several_outputs():
 
 def test_provenance_on_result():
     """apply records the derivation and its data dictionary in attrs; earlier provenance is kept."""
-    first = px.Derivation(px.baseline("sbp"), id="pid", time="day")
+    first = pfx.Derivation(pfx.baseline("sbp"), id="pid", time="day")
     out = first.apply(_frame())
     record = out.attrs["panelfx"]
-    assert px.Derivation.from_dict(record["derivation"]) == first
+    assert pfx.Derivation.from_dict(record["derivation"]) == first
     assert [r["column"] for r in record["dictionary"]] == ["sbp_baseline"]
     assert record["dictionary"][0]["dtype"] == "float64"
-    second = px.Derivation(px.lag("sbp_baseline"), id="pid", time="day")
+    second = pfx.Derivation(pfx.lag("sbp_baseline"), id="pid", time="day")
     out2 = second.apply(out)
-    assert px.Derivation.from_dict(out2.attrs["panelfx"]["derivation"]) == second
+    assert pfx.Derivation.from_dict(out2.attrs["panelfx"]["derivation"]) == second
     assert out2.attrs["panelfx"]["previous"] == record
     assert "previous" not in out.attrs["panelfx"]  # the first result is not changed
 
@@ -157,7 +157,7 @@ def test_provenance_on_result():
 def test_dictionary_without_frame():
     """One row per output column; past-only spreads (a lag of a baseline is not past-only);
     dtype unknown without a frame."""
-    d = px.Derivation(px.lag("sbp"), px.baseline("sbp"), px.lag("sbp_baseline"), px.within_between("sbp"),
+    d = pfx.Derivation(pfx.lag("sbp"), pfx.baseline("sbp"), pfx.lag("sbp_baseline"), pfx.within_between("sbp"),
                       id="pid", time="day")
     table = d.dictionary()
     assert list(table.columns) == DICTIONARY_COLUMNS
@@ -167,7 +167,7 @@ def test_dictionary_without_frame():
     assert table["past_only"].tolist() == [True, False, False, False, False]
     assert table["sources"].tolist() == ["sbp", "sbp", "sbp_baseline", "sbp", "sbp"]
     assert table["dtype"].isna().all()
-    assert table["description"].iloc[0] == px.lag("sbp").describe()
+    assert table["description"].iloc[0] == pfx.lag("sbp").describe()
     assert table["description"].iloc[3].endswith("[output 1 of 2]")
     assert table["time_unit"].iloc[0] == "D (days) for datetime times, else the units of 'day'"
 
@@ -176,22 +176,22 @@ def test_dictionary_with_frame_and_units():
     """With a frame the dtypes come from the applied result, and the unit is resolved:
     numbers keep their own units, datetimes use unit (default days)."""
     df = _frame()
-    d = px.Derivation(px.change_from_previous("sbp", "rate"), px.lag("sbp"), id="pid", time="day")
+    d = pfx.Derivation(pfx.change_from_previous("sbp", "rate"), pfx.lag("sbp"), id="pid", time="day")
     table = d.dictionary(df)
     assert table["dtype"].tolist() == ["float64", "float64"]
     assert set(table["time_unit"]) == {"the units of 'day'"}
     dated = df.assign(day=pd.Timestamp("2024-01-01") + pd.to_timedelta(df["day"], unit="D"))
     assert set(d.dictionary(dated)["time_unit"]) == {"D (days)"}
-    weekly = px.Derivation(*d.transforms, id="pid", time="day", unit="W")
+    weekly = pfx.Derivation(*d.transforms, id="pid", time="day", unit="W")
     assert set(weekly.dictionary(dated)["time_unit"]) == {"W (weeks)"}
     assert set(weekly.dictionary()["time_unit"]) == {"W (weeks)"}
     # the rate really is per week: 142 - 151 over 14 days = -9 per 2 weeks
     assert weekly.apply(dated).loc["d", "sbp_rate"] == pytest.approx(-4.5)
-    with pytest.raises(px.OptionError, match="unit='W' applies to datetime"):
+    with pytest.raises(pfx.OptionError, match="unit='W' applies to datetime"):
         weekly.apply(df)
 
 
 def test_empty_derivation():
-    d = px.Derivation(id="pid", time="day")
+    d = pfx.Derivation(id="pid", time="day")
     pd.testing.assert_frame_equal(d.apply(_frame()), _frame())
     assert d.dictionary().empty and list(d.dictionary().columns) == DICTIONARY_COLUMNS

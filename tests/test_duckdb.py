@@ -20,7 +20,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing import assert_matches_reference
 from panelfx.testing.strategies import panels
 
@@ -44,36 +44,36 @@ def ratio(y: str, ref: str) -> str:
 # Each pair: a panelfx transform and the DuckDB expression of the same derived variable.
 # {ids} is the PARTITION BY list; {dur} turns a difference of two times into the panel's
 # duration units (days for datetimes).
-CHECKS: list[tuple[px.Transform, str]] = [
+CHECKS: list[tuple[pfx.Transform, str]] = [
     # DuckDB first_value(... IGNORE NULLS): the first non-missing value of the subject
-    (px.baseline("y"), "first_value(y IGNORE NULLS) " + W),
-    (px.baseline("y", "first"), "first_value(y) " + W),
-    (px.baseline("x"), "first_value(x IGNORE NULLS) " + W),
-    (px.change_from_baseline("y"), "y - first_value(y IGNORE NULLS) " + W),
-    (px.change_from_baseline("y", "percent"), pct("y", "first_value(y IGNORE NULLS) " + W)),
-    (px.change_from_baseline("y", "ratio", rule="first"), ratio("y", "first_value(y) " + W)),
+    (pfx.baseline("y"), "first_value(y IGNORE NULLS) " + W),
+    (pfx.baseline("y", "first"), "first_value(y) " + W),
+    (pfx.baseline("x"), "first_value(x IGNORE NULLS) " + W),
+    (pfx.change_from_baseline("y"), "y - first_value(y IGNORE NULLS) " + W),
+    (pfx.change_from_baseline("y", "percent"), pct("y", "first_value(y IGNORE NULLS) " + W)),
+    (pfx.change_from_baseline("y", "ratio", rule="first"), ratio("y", "first_value(y) " + W)),
     # after_baseline_only: blank up to and including the baseline occasion (the first
     # occasion whose y is present); count of present values so far is 0 before it, 1 on it
-    (px.change_from_baseline("y", after_baseline_only=True),
+    (pfx.change_from_baseline("y", after_baseline_only=True),
      "CASE WHEN count(y) " + SO_FAR + " = 0 OR (count(y) " + SO_FAR + " = 1 AND y IS NOT NULL) THEN NULL "
      "ELSE y - first_value(y IGNORE NULLS) " + W + " END"),
     # DuckDB lag / lead
-    (px.lag("y"), "lag(y, 1) " + ORD),
-    (px.lag("y", 2), "lag(y, 2) " + ORD),
-    (px.lag("x", -1), "lead(x, 1) " + ORD),
-    (px.lag("flag"), "lag(flag, 1) " + ORD),
-    (px.change_from_previous("y"), "y - lag(y, 1) " + ORD),
-    (px.change_from_previous("y", "percent"), pct("y", "lag(y, 1) " + ORD)),
-    (px.change_from_previous("y", "rate"), "(y - lag(y, 1) " + ORD + ") / {dur}(t, lag(t, 1) " + ORD + ")"),
+    (pfx.lag("y"), "lag(y, 1) " + ORD),
+    (pfx.lag("y", 2), "lag(y, 2) " + ORD),
+    (pfx.lag("x", -1), "lead(x, 1) " + ORD),
+    (pfx.lag("flag"), "lag(flag, 1) " + ORD),
+    (pfx.change_from_previous("y"), "y - lag(y, 1) " + ORD),
+    (pfx.change_from_previous("y", "percent"), pct("y", "lag(y, 1) " + ORD)),
+    (pfx.change_from_previous("y", "rate"), "(y - lag(y, 1) " + ORD + ") / {dur}(t, lag(t, 1) " + ORD + ")"),
     # skip_missing: the last earlier present value, via last_value(... IGNORE NULLS) over the rows before
-    (px.change_from_previous("y", skip_missing=True), "y - last_value(y IGNORE NULLS) " + PREV),
-    (px.change_from_previous("y", "rate", skip_missing=True),
+    (pfx.change_from_previous("y", skip_missing=True), "y - last_value(y IGNORE NULLS) " + PREV),
+    (pfx.change_from_previous("y", "rate", skip_missing=True),
      "(y - last_value(y IGNORE NULLS) " + PREV + ") / "
      "{dur}(t, last_value(CASE WHEN y IS NOT NULL THEN t END IGNORE NULLS) " + PREV + ")"),
 ]
 
 
-def _named(tr: px.Transform, i: int) -> px.Transform:
+def _named(tr: pfx.Transform, i: int) -> pfx.Transform:
     return dataclasses.replace(tr, name=f"c{i}")
 
 
@@ -114,7 +114,7 @@ def duckdb_values(frame: pd.DataFrame, id_: str | list[str], exprs: dict[str, st
 def test_history_transforms_match_duckdb(case):
     """Baseline, change and lag transforms equal DuckDB window SQL on generated panels."""
     transforms = [_named(tr, i) for i, (tr, _) in enumerate(CHECKS)]
-    got = px.derive(case.frame, *transforms, **case.keys)
+    got = pfx.derive(case.frame, *transforms, **case.keys)
     want = duckdb_values(case.frame, case.id, {f"c{i}": sql for i, (_, sql) in enumerate(CHECKS)})
     for i, (tr, _) in enumerate(CHECKS):
         try:
@@ -128,10 +128,10 @@ def test_last_before_matches_duckdb(case):
     """Last non-missing value on or before a reference time: DuckDB
     arg_max(y, t) FILTER (WHERE t <= ref AND y IS NOT NULL) over the subject."""
     ref = 10
-    trs = [px.baseline("y", "last_before", reference=ref, name="b"),
-           px.change_from_baseline("y", rule="last_before", reference=ref, name="c")]
+    trs = [pfx.baseline("y", "last_before", reference=ref, name="b"),
+           pfx.change_from_baseline("y", rule="last_before", reference=ref, name="c")]
     base = f"arg_max(y, t) FILTER (WHERE t <= {ref} AND y IS NOT NULL) OVER (PARTITION BY {{ids}})"
-    got = px.derive(case.frame, *trs, **case.keys)
+    got = pfx.derive(case.frame, *trs, **case.keys)
     want = duckdb_values(case.frame, case.id, {"b": base, "c": f"y - {base}"})
     assert_matches_reference(got, want, ["b", "c"], id=case.id, time=case.time)
 
@@ -153,25 +153,25 @@ def test_duckdb_sql_itself_on_a_worked_example():
 STEP = "coalesce(lag(dose, 1) " + ORD + " * {dur}(t, lag(t, 1) " + ORD + "), 0)"
 TRAP = "coalesce((lag(dose, 1) " + ORD + " + dose) / 2 * {dur}(t, lag(t, 1) " + ORD + "), 0)"
 PRE = {"step_part": STEP, "trap_part": TRAP}
-MORE: list[tuple[Callable[[], px.Transform], str]] = [
-    (lambda: px.cumulative("dose"), "sum(dose) " + SO_FAR),
+MORE: list[tuple[Callable[[], pfx.Transform], str]] = [
+    (lambda: pfx.cumulative("dose"), "sum(dose) " + SO_FAR),
     # a missing value adds nothing; the running total is 0 before the first value
-    (lambda: px.cumulative("y"), "coalesce(sum(y) " + SO_FAR + ", 0)"),
+    (lambda: pfx.cumulative("y"), "coalesce(sum(y) " + SO_FAR + ", 0)"),
     # step integral: sum of v_{j-1} (t_j - t_{j-1}); trapezoid: sum of (v_{j-1} + v_j) / 2 (t_j - t_{j-1})
-    (lambda: px.cumulative("dose", "step"), "sum(step_part) " + SO_FAR),
-    (lambda: px.cumulative("dose", "trapezoid"), "sum(trap_part) " + SO_FAR),
-    (lambda: px.events_so_far("flag"), "count(*) FILTER (WHERE flag) " + SO_FAR),
-    (lambda: px.events_so_far("flag", include_current=False), "count(*) FILTER (WHERE flag) " + PREV),
-    (lambda: px.ever("flag"), "bool_or(flag) " + SO_FAR),
-    (lambda: px.ever("flag", include_current=False), "coalesce(bool_or(flag) " + PREV + ", false)"),
-    (lambda: px.time_since("flag"), "{dur}(t, max(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
-    (lambda: px.time_since("flag", "first"), "{dur}(t, min(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
-    (lambda: px.time_since("x", include_current=False), "{dur}(t, max(CASE WHEN x <> 0 THEN t END) " + PREV + ")"),
+    (lambda: pfx.cumulative("dose", "step"), "sum(step_part) " + SO_FAR),
+    (lambda: pfx.cumulative("dose", "trapezoid"), "sum(trap_part) " + SO_FAR),
+    (lambda: pfx.events_so_far("flag"), "count(*) FILTER (WHERE flag) " + SO_FAR),
+    (lambda: pfx.events_so_far("flag", include_current=False), "count(*) FILTER (WHERE flag) " + PREV),
+    (lambda: pfx.ever("flag"), "bool_or(flag) " + SO_FAR),
+    (lambda: pfx.ever("flag", include_current=False), "coalesce(bool_or(flag) " + PREV + ", false)"),
+    (lambda: pfx.time_since("flag"), "{dur}(t, max(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
+    (lambda: pfx.time_since("flag", "first"), "{dur}(t, min(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
+    (lambda: pfx.time_since("x", include_current=False), "{dur}(t, max(CASE WHEN x <> 0 THEN t END) " + PREV + ")"),
     # carry forward: last_value(... IGNORE NULLS) over the rows so far (CHECK-SOURCES.md)
-    (lambda: px.carry_forward("y"), "last_value(y IGNORE NULLS) " + SO_FAR),
-    (lambda: px.occasion(), "row_number() " + ORD),
-    (lambda: px.gap(), "{dur}(t, lag(t, 1) " + ORD + ")"),
-    (lambda: px.time_since_baseline(), "{dur}(t, first_value(t) " + W + ")"),
+    (lambda: pfx.carry_forward("y"), "last_value(y IGNORE NULLS) " + SO_FAR),
+    (lambda: pfx.occasion(), "row_number() " + ORD),
+    (lambda: pfx.gap(), "{dur}(t, lag(t, 1) " + ORD + ")"),
+    (lambda: pfx.time_since_baseline(), "{dur}(t, first_value(t) " + W + ")"),
 ]
 
 
@@ -182,7 +182,7 @@ def test_exposure_event_and_occasion_transforms_match_duckdb(case):
     forward, occasion number, gap and time since baseline equal DuckDB window SQL."""
     checks = [(build(), sql) for build, sql in MORE]
     transforms = [_named(tr, i) for i, (tr, _) in enumerate(checks)]
-    got = px.derive(case.frame, *transforms, **case.keys)
+    got = pfx.derive(case.frame, *transforms, **case.keys)
     want = duckdb_values(case.frame, case.id, {f"c{i}": sql for i, (_, sql) in enumerate(checks)}, pre=PRE)
     for i, (tr, _) in enumerate(checks):
         try:
@@ -194,8 +194,8 @@ def test_exposure_event_and_occasion_transforms_match_duckdb(case):
 @given(case=panels())
 def test_within_between_matches_duckdb(case):
     """Subject mean over non-missing values (DuckDB avg() OVER the subject) and the deviation from it."""
-    tr = px.within_between("y", names=("b", "w"))
-    got = px.derive(case.frame, tr, **case.keys)
+    tr = pfx.within_between("y", names=("b", "w"))
+    got = pfx.derive(case.frame, tr, **case.keys)
     mean = "avg(y) OVER (PARTITION BY {ids})"
     want = duckdb_values(case.frame, case.id, {"b": mean, "w": f"y - {mean}"})
     assert_matches_reference(got, want, ["b", "w"], rtol=1e-9, atol=1e-9, id=case.id, time=case.time)
@@ -207,8 +207,8 @@ def test_lag_by_time_offset_matches_duckdb_asof_join(case, days, tol_days):
     tolerance): DuckDB ASOF LEFT JOIN of the panel with itself on the subject and time."""
     numeric = pd.api.types.is_numeric_dtype(case.frame["t"].dtype)
     offset, tol = (days, tol_days) if numeric else (f"{days}D", f"{tol_days}D")
-    trs = [px.lag("y", offset=offset, name="a"), px.lag("y", offset=offset, tolerance=tol, name="b")]
-    got = px.derive(case.frame, *trs, **case.keys)
+    trs = [pfx.lag("y", offset=offset, name="a"), pfx.lag("y", offset=offset, tolerance=tol, name="b")]
+    got = pfx.derive(case.frame, *trs, **case.keys)
     ids = list(np.atleast_1d(case.id))
     # times as numbers (days for datetimes, as instants) so that offsets are exact
     tn = "t::DOUBLE" if numeric else "epoch_ns(t)::DOUBLE / 86400e9"

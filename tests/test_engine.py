@@ -9,13 +9,13 @@ import pandas as pd
 import pytest
 from hypothesis import given
 
-import panelfx as px
+import panelfx as pfx
 from panelfx._panel import Panel
 from panelfx.testing import assert_matches_reference, reference
 from panelfx.testing.strategies import ALL_ID_KINDS, ALL_TIME_KINDS, INDEX_KINDS, VALUE_KINDS, panels
 
-STEPS = (px.baseline("y"), px.change_from_baseline("y"), px.change_from_previous("y", "rate"), px.lag("y"),
-         px.lag("x", -1))
+STEPS = (pfx.baseline("y"), pfx.change_from_baseline("y"), pfx.change_from_previous("y", "rate"), pfx.lag("y"),
+         pfx.lag("x", -1))
 
 
 def visits() -> pd.DataFrame:
@@ -25,17 +25,17 @@ def visits() -> pd.DataFrame:
 
 
 def test_columns_in_order_inputs_then_outputs():
-    out = px.derive(visits(), *STEPS, id="pid", time="day")
+    out = pfx.derive(visits(), *STEPS, id="pid", time="day")
     assert list(out.columns) == ["pid", "day", "y", "x", "y_baseline", "y_change", "y_rate", "y_lag1", "x_lead1"]
 
 
 def test_unsorted_input_keeps_index_and_row_order():
     df = visits()
     shuffled = df.iloc[[4, 0, 5, 2, 1, 3]].set_axis(["e", "a", "f", "c", "b", "d"])
-    out = px.derive(shuffled, *STEPS, id="pid", time="day")
+    out = pfx.derive(shuffled, *STEPS, id="pid", time="day")
     assert list(out.index) == ["e", "a", "f", "c", "b", "d"]
     pd.testing.assert_frame_equal(out[list(df.columns)], shuffled)
-    sorted_out = px.derive(df, *STEPS, id="pid", time="day").set_axis(list("abcdef"))
+    sorted_out = pfx.derive(df, *STEPS, id="pid", time="day").set_axis(list("abcdef"))
     pd.testing.assert_frame_equal(out, sorted_out.loc[out.index])
 
 
@@ -54,29 +54,29 @@ def test_sorted_input_is_detected():
 
 def test_duplicate_index_labels_and_multiindex_are_kept():
     df = visits().set_axis([0, 0, 1, 1, 2, 2])
-    out = px.derive(df.iloc[::-1], px.lag("y"), id="pid", time="day")
+    out = pfx.derive(df.iloc[::-1], pfx.lag("y"), id="pid", time="day")
     assert list(out.index) == [2, 2, 1, 1, 0, 0]
-    want = reference(df.iloc[::-1], px.lag("y"), id="pid", time="day")
+    want = reference(df.iloc[::-1], pfx.lag("y"), id="pid", time="day")
     assert_matches_reference(out, want, ["y_lag1"])
     mi = visits().set_index(pd.MultiIndex.from_product([["a", "b"], [1, 2, 3]]))
-    assert px.derive(mi, px.lag("y"), id="pid", time="day").index.equals(mi.index)
+    assert pfx.derive(mi, pfx.lag("y"), id="pid", time="day").index.equals(mi.index)
 
 
 def test_empty_and_single_row_frames():
     empty = visits().iloc[:0]
-    out = px.derive(empty, *STEPS, id="pid", time="day")
+    out = pfx.derive(empty, *STEPS, id="pid", time="day")
     assert len(out) == 0 and list(out.columns)[-1] == "x_lead1"
-    one = px.derive(visits().iloc[[2]], *STEPS, id="pid", time="day")
+    one = pfx.derive(visits().iloc[[2]], *STEPS, id="pid", time="day")
     assert one["y_baseline"].tolist() == [6.0] and np.isnan(one["y_lag1"].iloc[0])
 
 
 def test_pipe_and_multi_column_ids():
     df = pd.DataFrame({"site": ["N", "N", "S", "S"], "subj": [1, 1, 1, 1], "day": [0, 5, 0, 5],
                        "y": [1.0, 2.0, 10.0, 13.0]})
-    out = df.pipe(px.derive, px.change_from_baseline("y"), id=["site", "subj"], time="day")
+    out = df.pipe(pfx.derive, pfx.change_from_baseline("y"), id=["site", "subj"], time="day")
     assert out["y_change"].tolist() == [0.0, 1.0, 0.0, 3.0]
-    with pytest.raises(px.DuplicateOccasionError):
-        px.derive(df, px.lag("y"), id="subj", time="day")  # subject numbers repeat across sites
+    with pytest.raises(pfx.DuplicateOccasionError):
+        pfx.derive(df, pfx.lag("y"), id="subj", time="day")  # subject numbers repeat across sites
 
 
 ID_DTYPES = ["int64", "Int64", "int64[pyarrow]", "str", "string[pyarrow]", "category", "object"]
@@ -106,8 +106,8 @@ def _with_dtypes(id_dtype: str, time_dtype: str, value_dtype: str) -> pd.DataFra
 @pytest.mark.parametrize("id_dtype", ID_DTYPES)
 def test_id_dtypes(id_dtype):
     df = _with_dtypes(id_dtype, "int64", "float64")
-    out = px.derive(df, *STEPS, id="pid", time="day")
-    want = px.derive(visits(), *STEPS, id="pid", time="day")
+    out = pfx.derive(df, *STEPS, id="pid", time="day")
+    want = pfx.derive(visits(), *STEPS, id="pid", time="day")
     assert_matches_reference(out, want, [c for tr in STEPS for c in tr.outputs()], rtol=0, atol=0)
     assert out["pid"].dtype == df["pid"].dtype
 
@@ -118,8 +118,8 @@ def test_time_dtypes(time_dtype):
     winter time inside the data) and timedeltas give the same derived values; the
     default unit of datetime durations is the day."""
     df = _with_dtypes("int64", time_dtype, "float64")
-    out = px.derive(df, *STEPS, id="pid", time="day")
-    want = px.derive(visits(), *STEPS, id="pid", time="day")
+    out = pfx.derive(df, *STEPS, id="pid", time="day")
+    want = pfx.derive(visits(), *STEPS, id="pid", time="day")
     # the tz case crosses the end of daylight saving (3 Nov 2024 in Chicago): durations are
     # between instants, so calendar day 7 is 7 days + 1 hour after day 0
     rtol = 1e-2 if time_dtype == "datetime_tz" else 0
@@ -131,15 +131,15 @@ def test_time_dtypes(time_dtype):
 def test_value_dtypes(value_dtype):
     df = _with_dtypes("int64", "int64", value_dtype)
     base = visits().assign(y=df["y"].astype("float64"))
-    out = px.derive(df, *STEPS, id="pid", time="day")
-    want = px.derive(base, *STEPS, id="pid", time="day")
+    out = pfx.derive(df, *STEPS, id="pid", time="day")
+    want = pfx.derive(base, *STEPS, id="pid", time="day")
     assert_matches_reference(out, want, [c for tr in STEPS for c in tr.outputs()], rtol=1e-6, atol=0)
     assert out["y"].dtype == df["y"].dtype
 
 
 def test_copy_on_write_output_is_independent():
     df = visits()
-    out = px.derive(df, px.lag("y"), id="pid", time="day")
+    out = pfx.derive(df, pfx.lag("y"), id="pid", time="day")
     out.loc[0, "y"] = -1.0
     assert df.loc[0, "y"] == 4.0
 
@@ -149,11 +149,11 @@ def test_copy_on_write_output_is_independent():
 def test_row_order_does_not_matter(case):
     """Deriving on shuffled rows gives each row what it gets from the sorted frame, for every
     id, time, index and value storage the strategy generates."""
-    got = px.derive(case.frame, *STEPS, **case.keys)
+    got = pfx.derive(case.frame, *STEPS, **case.keys)
     keys = [*np.atleast_1d(case.id), case.time]
     order = np.lexsort([pd.factorize(case.frame[k], sort=True)[0] for k in reversed(keys)])
     sorted_frame = case.frame.iloc[order]
-    again = px.derive(sorted_frame, *STEPS, **case.keys)
+    again = pfx.derive(sorted_frame, *STEPS, **case.keys)
     assert Panel(sorted_frame, **case.keys).ordering.order is None
     # bit for bit: the kernels never depend on where a subject sits among the others
     assert_matches_reference(got.iloc[order], again, [c for tr in STEPS for c in tr.outputs()], rtol=0.0, atol=0.0)

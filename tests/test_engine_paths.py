@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 from panelfx import _kernels as K
 from panelfx import _order, _time
 from panelfx._panel import Panel
@@ -100,25 +100,25 @@ def test_small_integer_id_types_do_not_wrap():
     """int8 ids from -100 to 100: the offset from the smallest id does not fit int8."""
     df = pd.DataFrame({"id": np.array([100, -100, 100, -100], dtype=np.int8), "t": [1, 1, 0, 0],
                        "y": [1.0, 2.0, 3.0, 4.0]})
-    out = px.derive(df, px.lag("y"), id="id", time="t")
+    out = pfx.derive(df, pfx.lag("y"), id="id", time="t")
     assert out["y_lag1"].tolist()[:2] == [3.0, 4.0]
 
 
 @pytest.mark.parametrize("paths", SEARCHES)
 def test_every_search_path_gives_the_same_values(paths):
     rng = np.random.default_rng(12)
-    steps = [px.lag("y", offset=0.5), px.lag("y", offset=1, tolerance=0.25, name="lag_tol"),
-             px.rolling("y", "sum", span=1.5), px.rolling("y", "max", span=0.75, closed="both"),
-             px.carry_forward("y", max_span=1)]
+    steps = [pfx.lag("y", offset=0.5), pfx.lag("y", offset=1, tolerance=0.25, name="lag_tol"),
+             pfx.rolling("y", "sum", span=1.5), pfx.rolling("y", "max", span=0.75, closed="both"),
+             pfx.carry_forward("y", max_span=1)]
     for trial in range(30):
         n = int(rng.integers(1, 300))
         t = np.round(rng.random(n) * 10, [0, 1, 2][trial % 3]) if trial % 4 else rng.random(n) * 10
         df = pd.DataFrame({"id": rng.integers(0, 8, n), "t": t, "y": rng.normal(size=n)})
         df = df.drop_duplicates(["id", "t"])
         df.loc[df.sample(frac=0.2, random_state=trial).index, "y"] = np.nan
-        want = px.derive(df, *steps, id="id", time="t")
+        want = pfx.derive(df, *steps, id="id", time="t")
         with search(paths):
-            got = px.derive(df, *steps, id="id", time="t")
+            got = pfx.derive(df, *steps, id="id", time="t")
         pd.testing.assert_frame_equal(got, want, check_exact=True)
 
 
@@ -154,7 +154,7 @@ def test_decimal_probe_of_the_first_rows_is_confirmed_on_all_rows():
     assert _time.decimal_scale(t) == 100
     assert _time.decimal_scale(t[: _time.PROBE]) == 1
     df = pd.DataFrame({"id": 1, "t": t, "y": 1.0})
-    out = px.derive(df, px.rolling("y", "count", span=0.02), id="id", time="t")
+    out = pfx.derive(df, pfx.rolling("y", "count", span=0.02), id="id", time="t")
     # (t - 0.02, t] holds the row before (0.01 earlier) and itself, exactly as decimals
     assert out["y_count_0.02"].iloc[-1] == 2 and out["y_count_0.02"].iloc[-49] == 2
 

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing import assert_matches_reference, reference
 from panelfx.testing.strategies import ALL_TIME_KINDS, VALUE_KINDS, panels
 
@@ -18,7 +18,7 @@ NAN = math.nan
 
 
 def run(df, *trs, **kw):
-    return px.derive(df, *trs, id="pid", time="t", **kw)
+    return pfx.derive(df, *trs, id="pid", time="t", **kw)
 
 
 def events_frame():
@@ -30,9 +30,9 @@ def events_frame():
 # ---------------------------------------------------------------------------- by hand
 def test_time_since_by_hand():
     out = run(events_frame(),
-              px.time_since("ev"), px.time_since("ev", "first"),
-              px.time_since("ev", include_current=False, name="prior_last"),
-              px.time_since("ev", "first", include_current=False, name="prior_first"))
+              pfx.time_since("ev"), pfx.time_since("ev", "first"),
+              pfx.time_since("ev", include_current=False, name="prior_last"),
+              pfx.time_since("ev", "first", include_current=False, name="prior_first"))
     np.testing.assert_array_equal(out["time_since_ev"], [NAN, 0, 3, 0, 2])
     np.testing.assert_array_equal(out["time_since_first_ev"], [NAN, 0, 3, 5, 7])
     np.testing.assert_array_equal(out["prior_last"], [NAN, NAN, 3, 5, 2])
@@ -41,8 +41,8 @@ def test_time_since_by_hand():
 
 
 def test_counts_and_ever_by_hand():
-    out = run(events_frame(), px.events_so_far("ev"), px.events_so_far("ev", include_current=False, name="prior"),
-              px.ever("ev"), px.ever("ev", include_current=False, name="ever_before"))
+    out = run(events_frame(), pfx.events_so_far("ev"), pfx.events_so_far("ev", include_current=False, name="prior"),
+              pfx.ever("ev"), pfx.ever("ev", include_current=False, name="ever_before"))
     assert out["ev_count"].tolist() == [0, 1, 1, 2, 2]
     assert out["prior"].tolist() == [0, 0, 1, 1, 2]
     assert out["ev_ever"].tolist() == [False, True, True, True, True]
@@ -55,7 +55,7 @@ def test_numeric_flags_datetimes_and_unsorted_rows():
     df = pd.DataFrame({"pid": ["b", "a", "a", "a", "b"],
                        "t": pd.to_datetime(["2024-01-03", "2024-01-08", "2024-01-01", "2024-01-02", "2024-01-01"]),
                        "n": [0, 2, -1, np.nan, 0]}, index=[10, 11, 12, 13, 14])
-    out = run(df, px.time_since("n"), px.events_so_far("n"), px.time_since("n", "first"), unit="h")
+    out = run(df, pfx.time_since("n"), pfx.events_so_far("n"), pfx.time_since("n", "first"), unit="h")
     np.testing.assert_array_equal(out["time_since_n"], [NAN, 0, 0, 24, NAN])
     np.testing.assert_array_equal(out["time_since_first_n"], [NAN, 7 * 24, 0, 24, NAN])
     assert out["n_count"].tolist() == [0, 2, 1, 1, 0]
@@ -63,7 +63,7 @@ def test_numeric_flags_datetimes_and_unsorted_rows():
 
 
 def test_options_and_descriptions():
-    for tr in (px.time_since("ev", "first", include_current=False), px.events_so_far("ev"), px.ever("ev")):
+    for tr in (pfx.time_since("ev", "first", include_current=False), pfx.events_so_far("ev"), pfx.ever("ev")):
         assert type(tr)(**tr.options()) == tr
         assert tr.past_only
         assert "missing flag is not an event" in tr.describe()
@@ -86,10 +86,10 @@ def with_missing_flags(frame: pd.DataFrame) -> pd.DataFrame:
 def test_matches_reference(case, col_, which, current, kind):
     """Each event transform equals the per-subject loop reference, missing flags included."""
     frame = with_missing_flags(case.frame)
-    tr = {"since": px.time_since(col_, which, include_current=current),
-          "count": px.events_so_far(col_, include_current=current),
-          "ever": px.ever(col_, include_current=current)}[kind]
-    got = px.derive(frame, tr, **case.keys)
+    tr = {"since": pfx.time_since(col_, which, include_current=current),
+          "count": pfx.events_so_far(col_, include_current=current),
+          "ever": pfx.ever(col_, include_current=current)}[kind]
+    got = pfx.derive(frame, tr, **case.keys)
     want = reference(frame, tr, **case.keys)
     assert_matches_reference(got, want, list(tr.outputs()), rtol=1e-12)
 
@@ -99,8 +99,8 @@ def test_matches_reference(case, col_, which, current, kind):
 def test_consistency_between_the_three(case):
     """ever == (count > 0), time since the last event is missing exactly where ever is False,
     and it never exceeds the time since the first event."""
-    out = px.derive(case.frame, px.events_so_far("flag"), px.ever("flag"), px.time_since("flag"),
-                    px.time_since("flag", "first"), **case.keys)
+    out = pfx.derive(case.frame, pfx.events_so_far("flag"), pfx.ever("flag"), pfx.time_since("flag"),
+                    pfx.time_since("flag", "first"), **case.keys)
     assert (out["flag_ever"] == (out["flag_count"] > 0)).all()
     assert (out["time_since_flag"].isna() == ~out["flag_ever"]).all()
     both = out["time_since_flag"].notna()
@@ -109,21 +109,21 @@ def test_consistency_between_the_three(case):
 
 # ---------------------------------------------------------------------------- errors
 @pytest.mark.parametrize("make, words", [
-    (lambda: px.time_since("ev", "latest"), "which must be one of"),
-    (lambda: px.time_since("ev", include_current="yes"), "include_current must be True or False"),
-    (lambda: px.events_so_far("ev", include_current=1), "include_current must be True or False"),
-    (lambda: px.ever("ev", include_current=None), "include_current must be True or False"),
-    (lambda: px.time_since(3), "col must be a column name"),
-    (lambda: px.ever("ev", name=5), "name must be a column name"),
+    (lambda: pfx.time_since("ev", "latest"), "which must be one of"),
+    (lambda: pfx.time_since("ev", include_current="yes"), "include_current must be True or False"),
+    (lambda: pfx.events_so_far("ev", include_current=1), "include_current must be True or False"),
+    (lambda: pfx.ever("ev", include_current=None), "include_current must be True or False"),
+    (lambda: pfx.time_since(3), "col must be a column name"),
+    (lambda: pfx.ever("ev", name=5), "name must be a column name"),
 ])
 def test_bad_options(make, words):
-    with pytest.raises(px.OptionError, match=words):
+    with pytest.raises(pfx.OptionError, match=words):
         make()
 
 
-@pytest.mark.parametrize("tr", [px.time_since("txt"), px.events_so_far("txt"), px.ever("txt"),
-                                px.time_since("when")])
+@pytest.mark.parametrize("tr", [pfx.time_since("txt"), pfx.events_so_far("txt"), pfx.ever("txt"),
+                                pfx.time_since("when")])
 def test_wrong_dtype(tr):
     df = events_frame().assign(txt=list("yynny"), when=pd.Timestamp("2024-01-01"))
-    with pytest.raises(px.ColumnTypeError):
+    with pytest.raises(pfx.ColumnTypeError):
         run(df, tr)

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 
 
 @pytest.fixture
@@ -29,11 +29,11 @@ def col(df: pd.DataFrame, name: str) -> list:
 
 def test_baseline_rules(visits):
     """first / first_valid / last_before pick the documented row and carry it to every row."""
-    out = px.derive(
+    out = pfx.derive(
         visits,
-        px.baseline("y", "first", name="b_first"),
-        px.baseline("y"),
-        px.baseline("y", "last_before", reference="start", name="b_ref"),
+        pfx.baseline("y", "first", name="b_first"),
+        pfx.baseline("y"),
+        pfx.baseline("y", "last_before", reference="start", name="b_ref"),
         id="pid", time="day",
     )
     # a: days 0 (NaN), 10 (6), 20 (9); b: days 0 (0), 10 (4), 25 (5)
@@ -46,7 +46,7 @@ def test_baseline_rules(visits):
 
 def test_baseline_keeps_dtype_of_text_and_ints():
     df = pd.DataFrame({"pid": [1, 1, 2], "t": [0, 1, 0], "arm": ["x", "y", "z"], "n": [3, 4, 5]})
-    out = px.derive(df, px.baseline("arm"), px.baseline("n"), id="pid", time="t")
+    out = pfx.derive(df, pfx.baseline("arm"), pfx.baseline("n"), id="pid", time="t")
     assert out["arm_baseline"].tolist() == ["x", "x", "z"]
     assert out["n_baseline"].dtype == np.int64
     assert out["n_baseline"].tolist() == [3, 3, 5]
@@ -54,17 +54,17 @@ def test_baseline_keeps_dtype_of_text_and_ints():
 
 def test_baseline_numeric_reference():
     df = pd.DataFrame({"pid": [1, 1, 1], "t": [-7, 0, 7], "y": [1.0, np.nan, 3.0]})
-    out = px.derive(df, px.baseline("y", "last_before", reference=0), id="pid", time="t")
+    out = pfx.derive(df, pfx.baseline("y", "last_before", reference=0), id="pid", time="t")
     assert col(out, "y_baseline") == [1.0, 1.0, 1.0]
 
 
 def test_change_from_baseline_kinds(visits):
-    out = px.derive(
+    out = pfx.derive(
         visits,
-        px.change_from_baseline("y"),
-        px.change_from_baseline("y", "percent"),
-        px.change_from_baseline("y", "ratio"),
-        px.change_from_baseline("y", after_baseline_only=True, name="post"),
+        pfx.change_from_baseline("y"),
+        pfx.change_from_baseline("y", "percent"),
+        pfx.change_from_baseline("y", "ratio"),
+        pfx.change_from_baseline("y", after_baseline_only=True, name="post"),
         id="pid", time="day",
     )
     # rows: b10, a20, a0, b0, a10, b25; baseline a = 6 (day 10), b = 0 (day 0)
@@ -77,12 +77,12 @@ def test_change_from_baseline_kinds(visits):
 
 
 def test_change_from_previous_kinds(visits):
-    out = px.derive(
+    out = pfx.derive(
         visits,
-        px.change_from_previous("y"),
-        px.change_from_previous("y", "percent"),
-        px.change_from_previous("y", "rate"),
-        px.change_from_previous("y", "rate", skip_missing=True, name="rate_skip"),
+        pfx.change_from_previous("y"),
+        pfx.change_from_previous("y", "percent"),
+        pfx.change_from_previous("y", "rate"),
+        pfx.change_from_previous("y", "rate", skip_missing=True, name="rate_skip"),
         id="pid", time="day",
     )
     # a: NaN, 6, 9 at 0, 10, 20;  b: 0, 4, 5 at 0, 10, 25
@@ -94,22 +94,22 @@ def test_change_from_previous_kinds(visits):
 
 def test_change_from_previous_skip_missing_uses_time_of_last_value():
     df = pd.DataFrame({"pid": [1] * 4, "t": [0, 5, 10, 20], "y": [1.0, np.nan, np.nan, 4.0]})
-    out = px.derive(df, px.change_from_previous("y", skip_missing=True),
-                    px.change_from_previous("y", "rate", skip_missing=True), id="pid", time="t")
+    out = pfx.derive(df, pfx.change_from_previous("y", skip_missing=True),
+                    pfx.change_from_previous("y", "rate", skip_missing=True), id="pid", time="t")
     assert col(out, "y_diff") == [None, None, None, 3.0]
     assert col(out, "y_rate") == [None, None, None, 0.15]
 
 
 def test_rate_in_days_and_hours_for_datetimes():
     df = pd.DataFrame({"pid": [1, 1], "when": pd.to_datetime(["2025-03-01", "2025-03-03"]), "y": [10.0, 14.0]})
-    per_day = px.derive(df, px.change_from_previous("y", "rate"), id="pid", time="when")
-    per_hour = px.derive(df, px.change_from_previous("y", "rate"), id="pid", time="when", unit="h")
+    per_day = pfx.derive(df, pfx.change_from_previous("y", "rate"), id="pid", time="when")
+    per_hour = pfx.derive(df, pfx.change_from_previous("y", "rate"), id="pid", time="when", unit="h")
     assert per_day["y_rate"].iloc[1] == 2.0
     assert per_hour["y_rate"].iloc[1] == pytest.approx(4 / 48)
 
 
 def test_lag_and_lead(visits):
-    out = px.derive(visits, px.lag("y"), px.lag("y", 2), px.lag("y", -1), id="pid", time="day")
+    out = pfx.derive(visits, pfx.lag("y"), pfx.lag("y", 2), pfx.lag("y", -1), id="pid", time="day")
     assert col(out, "y_lag1") == [0.0, 6.0, None, None, None, 4.0]
     assert col(out, "y_lag2") == [None, None, None, None, None, 0.0]
     assert col(out, "y_lead1") == [5.0, None, 6.0, 4.0, 9.0, None]
@@ -117,7 +117,7 @@ def test_lag_and_lead(visits):
 
 def test_lag_of_text_keeps_dtype():
     df = pd.DataFrame({"pid": [1, 1], "t": [1.5, 2.5], "arm": pd.Categorical(["p", "q"])})
-    out = px.derive(df, px.lag("arm"), id="pid", time="t")
+    out = pfx.derive(df, pfx.lag("arm"), id="pid", time="t")
     assert isinstance(out["arm_lag1"].dtype, pd.CategoricalDtype)
     assert out["arm_lag1"].isna().tolist() == [True, False]
     assert out["arm_lag1"].iloc[1] == "p"
@@ -126,7 +126,7 @@ def test_lag_of_text_keeps_dtype():
 def test_multi_column_id_and_tz_aware_time():
     when = pd.to_datetime(["2025-01-01", "2025-01-08", "2025-01-01"]).tz_localize("Europe/Oslo")
     df = pd.DataFrame({"site": ["n", "n", "s"], "subj": [1, 1, 1], "when": when, "y": [1.0, 2.0, 3.0]})
-    out = px.derive(df, px.change_from_baseline("y"), px.change_from_previous("y", "rate"),
+    out = pfx.derive(df, pfx.change_from_baseline("y"), pfx.change_from_previous("y", "rate"),
                     id=["site", "subj"], time="when", unit="W")
     assert col(out, "y_change") == [0.0, 1.0, 0.0]
     assert col(out, "y_rate") == [None, 1.0, None]
@@ -135,37 +135,37 @@ def test_multi_column_id_and_tz_aware_time():
 @pytest.mark.parametrize(
     "make, message",
     [
-        (lambda: px.lag("y", 0), "periods must be a non-zero integer, got 0"),
-        (lambda: px.lag("y", 1.5), "periods must be an integer"),
-        (lambda: px.baseline("y", "middle"), "rule must be one of"),
-        (lambda: px.baseline("y", "last_before"), "needs reference="),
-        (lambda: px.baseline("y", reference="start"), "used only with rule='last_before'"),
-        (lambda: px.change_from_baseline("y", "log"), "kind must be one of"),
-        (lambda: px.change_from_previous("y", "ratio"), "kind must be one of"),
-        (lambda: px.change_from_previous("y", skip_missing="yes"), "skip_missing must be True or False"),
-        (lambda: px.lag(3), "col must be a column name"),
-        (lambda: px.lag("y", name=""), "name must be a column name"),
+        (lambda: pfx.lag("y", 0), "periods must be a non-zero integer, got 0"),
+        (lambda: pfx.lag("y", 1.5), "periods must be an integer"),
+        (lambda: pfx.baseline("y", "middle"), "rule must be one of"),
+        (lambda: pfx.baseline("y", "last_before"), "needs reference="),
+        (lambda: pfx.baseline("y", reference="start"), "used only with rule='last_before'"),
+        (lambda: pfx.change_from_baseline("y", "log"), "kind must be one of"),
+        (lambda: pfx.change_from_previous("y", "ratio"), "kind must be one of"),
+        (lambda: pfx.change_from_previous("y", skip_missing="yes"), "skip_missing must be True or False"),
+        (lambda: pfx.lag(3), "col must be a column name"),
+        (lambda: pfx.lag("y", name=""), "name must be a column name"),
     ],
 )
 def test_option_errors(make, message):
-    with pytest.raises(px.OptionError, match=message.replace("(", r"\(").replace(")", r"\)")):
+    with pytest.raises(pfx.OptionError, match=message.replace("(", r"\(").replace(")", r"\)")):
         make()
 
 
 def test_reference_must_fit_time_and_be_constant():
     df = pd.DataFrame({"pid": [1, 1], "when": pd.to_datetime(["2025-01-01", "2025-02-01"]), "y": [1.0, 2.0],
                        "start": [5, 5], "start_dt": pd.to_datetime(["2025-01-10", "2025-01-11"])})
-    with pytest.raises(px.TimeTypeError, match="'start' holds number values"):
-        px.derive(df, px.baseline("y", "last_before", reference="start"), id="pid", time="when")
-    with pytest.raises(px.NotConstantError, match="reference time varies within subject") as err:
-        px.derive(df, px.baseline("y", "last_before", reference="start_dt"), id="pid", time="when")
+    with pytest.raises(pfx.TimeTypeError, match="'start' holds number values"):
+        pfx.derive(df, pfx.baseline("y", "last_before", reference="start"), id="pid", time="when")
+    with pytest.raises(pfx.NotConstantError, match="reference time varies within subject") as err:
+        pfx.derive(df, pfx.baseline("y", "last_before", reference="start_dt"), id="pid", time="when")
     assert err.value.column == "start_dt" and err.value.count == 1 and err.value.ids == [1]
-    with pytest.raises(px.OptionError, match="is a number but time column"):
-        px.derive(df, px.baseline("y", "last_before", reference=0), id="pid", time="when")
+    with pytest.raises(pfx.OptionError, match="is a number but time column"):
+        pfx.derive(df, pfx.baseline("y", "last_before", reference=0), id="pid", time="when")
 
 
 def test_transforms_are_frozen_values():
-    a, b = px.change_from_baseline("y", "percent"), px.change_from_baseline("y", "percent")
+    a, b = pfx.change_from_baseline("y", "percent"), pfx.change_from_baseline("y", "percent")
     assert a == b and hash(a) == hash(b)
     assert "kind='percent'" in repr(a)
     with pytest.raises(AttributeError):

@@ -14,7 +14,7 @@ from catalogue import ENTRIES
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx import Derivation, DerivationFileError
 from panelfx._panel import UNITS_NS
 from panelfx._transform import REGISTRY, Transform, check_column_name
@@ -64,7 +64,7 @@ def transforms(draw: st.DrawFn, i: int) -> Transform:
         value = draw(_values(hints.get(f.name, Any)))
         try:
             tr = dataclasses.replace(tr, **{f.name: value})
-        except (px.PanelError, TypeError, ValueError):
+        except (pfx.PanelError, TypeError, ValueError):
             pass  # keep a configuration the transform accepts
     fields = {f.name for f in dataclasses.fields(tr)}
     if "names" in fields:
@@ -122,14 +122,14 @@ def test_every_registered_transform_round_trips():
 
 def test_layout():
     """The file is plain JSON with a marker, a version, the panel and the transforms' options in order."""
-    d = Derivation(px.lag("sbp", 2), id=["site", "pid"], time="visit", unit="W", description="Invented · cohort")
+    d = Derivation(pfx.lag("sbp", 2), id=["site", "pid"], time="visit", unit="W", description="Invented · cohort")
     doc = json.loads(d.to_json())
     assert doc == {
         "format": FORMAT, "version": VERSION, "description": "Invented · cohort",
         "panel": {"id": ["site", "pid"], "time": "visit", "unit": "W"},
-        "transforms": [{"type": "lag", "options": dict(px.lag("sbp", 2).options())}],
+        "transforms": [{"type": "lag", "options": dict(pfx.lag("sbp", 2).options())}],
     }
-    assert list(doc["transforms"][0]["options"]) == [f.name for f in dataclasses.fields(px.lag("sbp"))]
+    assert list(doc["transforms"][0]["options"]) == [f.name for f in dataclasses.fields(pfx.lag("sbp"))]
     assert "Invented · cohort" in d.to_json()  # readable, not \\u-escaped
 
 
@@ -139,12 +139,12 @@ def test_left_out_options_take_defaults():
                        "transforms": [{"type": "change_from_baseline", "options": {"col": "sbp", "kind": "percent"}},
                                       {"type": "occasion"}]})
     d = Derivation.from_json(text)
-    assert d.transforms == (px.change_from_baseline("sbp", "percent"), px.occasion())
+    assert d.transforms == (pfx.change_from_baseline("sbp", "percent"), pfx.occasion())
     assert d.unit is None and d.description == ""
 
 
 def test_save_and_load(tmp_path):
-    d = Derivation(px.baseline("sbp"), px.within_between("sbp"), id="pid", time="day", description="invented")
+    d = Derivation(pfx.baseline("sbp"), pfx.within_between("sbp"), id="pid", time="day", description="invented")
     path = tmp_path / "derivation.json"
     d.save(path)
     assert Derivation.load(path) == d
@@ -170,9 +170,9 @@ def test_values_that_cannot_be_saved():
         def outputs(self):
             return (f"{self.col}_loose",)
 
-    with pytest.raises(px.OptionError, match=r"transforms\[0\]\.options\.level: nan cannot be saved"):
+    with pytest.raises(pfx.OptionError, match=r"transforms\[0\]\.options\.level: nan cannot be saved"):
         Derivation(Loose(col="y", level=float("nan")), id="pid", time="t").to_json()
-    with pytest.raises(px.OptionError, match=r"transforms\[0\]\.options\.level: a set .* cannot be saved"):
+    with pytest.raises(pfx.OptionError, match=r"transforms\[0\]\.options\.level: a set .* cannot be saved"):
         Derivation(Loose(col="y", level={1}), id="pid", time="t").to_json()
     import numpy as np
 
@@ -198,7 +198,7 @@ def new_transform():
         def __post_init__(self) -> None:
             check_column_name("col", self.col)
             if list(self.edges) != sorted(self.edges):
-                raise px.OptionError(f"edges must be increasing, got {list(self.edges)!r}")
+                raise pfx.OptionError(f"edges must be increasing, got {list(self.edges)!r}")
 
         def inputs(self):
             return (self.col,)
@@ -230,7 +230,7 @@ def test_new_transforms_need_no_code_here(new_transform):
 
 # ------------------------------------------------------------------------------ malformed files
 
-_GOOD = Derivation(px.lag("sbp"), px.within_between("sbp"), px.baseline("sbp", "last_before", reference=3),
+_GOOD = Derivation(pfx.lag("sbp"), pfx.within_between("sbp"), pfx.baseline("sbp", "last_before", reference=3),
                    id="pid", time="day").to_dict()
 
 
@@ -331,7 +331,7 @@ def test_malformed_files(label, text, path, words):
     assert err.value.path == path
     if path:
         assert str(err.value).startswith(f"{path}: ")
-    assert isinstance(err.value, px.OptionError) and isinstance(err.value, ValueError)
+    assert isinstance(err.value, pfx.OptionError) and isinstance(err.value, ValueError)
 
 
 def test_the_good_file_reads():
@@ -351,5 +351,5 @@ def test_missing_column_is_reported_when_applied():
 
     d = Derivation.from_json(_doc(_set(T0 + ["col"], "dbp")))
     frame = pd.DataFrame({"pid": [1, 1], "day": [0, 1], "sbp": [1.0, 2.0]})
-    with pytest.raises(px.MissingColumnError, match="column 'dbp' needed by transform #1 \\(lag\\) is not in the frame"):
+    with pytest.raises(pfx.MissingColumnError, match="column 'dbp' needed by transform #1 \\(lag\\) is not in the frame"):
         d.apply(frame)

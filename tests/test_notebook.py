@@ -35,7 +35,7 @@ def test_notebook_is_stored_without_outputs():
     assert all(c.outputs == [] and c.execution_count is None for c in code)
     assert "invented" in nb.cells[0].source.lower()
     source = "\n".join(c.source for c in code)
-    assert "px.Derivation(" in source and ".save(" in source and "Derivation.load(" in source
+    assert "pfx.Derivation(" in source and ".save(" in source and "Derivation.load(" in source
 
 
 @pytest.fixture(scope="module")

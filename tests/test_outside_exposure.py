@@ -16,7 +16,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing.strategies import panels
 
 integrate = pytest.importorskip("scipy.integrate")
@@ -40,7 +40,7 @@ def test_scipy_documented_example():
     gives 0, 3, 11, 18.5 (verified in CHECK-SOURCES.md); panelfx gives the same."""
     t, y = [0, 1, 3, 6], [2.0, 4.0, 4.0, 1.0]
     want = integrate.cumulative_trapezoid(y, x=t, initial=0)
-    got = px.derive(pd.DataFrame({"pid": 1, "t": t, "y": y}), px.cumulative("y", "trapezoid"), id="pid", time="t")
+    got = pfx.derive(pd.DataFrame({"pid": 1, "t": t, "y": y}), pfx.cumulative("y", "trapezoid"), id="pid", time="t")
     np.testing.assert_array_equal(got["y_auc"], want)
     np.testing.assert_array_equal(want, [0, 3, 11, 18.5])
 
@@ -50,8 +50,8 @@ def test_scipy_documented_example():
 def test_trapezoid_matches_scipy(case):
     """scipy.integrate.cumulative_trapezoid, subject by subject in time order.  scipy lets a
     NaN spread to every later area, which is panelfx's missing="propagate"."""
-    out = px.derive(case.frame, px.cumulative("dose", "trapezoid", name="a"),
-                    px.cumulative("y", "trapezoid", missing="propagate", name="b"), **case.keys)
+    out = pfx.derive(case.frame, pfx.cumulative("dose", "trapezoid", name="a"),
+                    pfx.cumulative("y", "trapezoid", missing="propagate", name="b"), **case.keys)
     for _, rows in sorted_groups(out, case.id, case.time):
         x = x_of(rows[case.time])
         for col, got in (("dose", "a"), ("y", "b")):
@@ -69,7 +69,7 @@ def dietox() -> pd.DataFrame:
 def test_weight_area_matches_scipy_on_dietox():
     """scipy.integrate.cumulative_trapezoid of each pig's weight over weeks (statsmodels dietox.csv)."""
     df = dietox()
-    out = px.derive(df, px.cumulative("Weight", "trapezoid"), id="Pig", time="Time")
+    out = pfx.derive(df, pfx.cumulative("Weight", "trapezoid"), id="Pig", time="Time")
     assert out.index.equals(df.index)
     for _, rows in sorted_groups(out, "Pig", "Time"):
         want = integrate.cumulative_trapezoid(rows["Weight"], x=rows["Time"], initial=0)
@@ -87,7 +87,7 @@ def test_cumulative_sum_rebuilds_dietox_feed():
     by_pig = df.assign(feed0=feed0).sort_values(["Pig", "Time"])
     weekly = by_pig.groupby("Pig")["feed0"].diff().reindex(df.index)  # missing at each pig's first week
     assert weekly.isna().sum() == df["Pig"].nunique()
-    out = px.derive(df.assign(weekly=weekly), px.cumulative("weekly"), id="Pig", time="Time")
+    out = pfx.derive(df.assign(weekly=weekly), pfx.cumulative("weekly"), id="Pig", time="Time")
     np.testing.assert_allclose(out["weekly_cum"], feed0, rtol=0, atol=1e-9)
     assert (out["weekly_cum"][df["Feed"].isna()] == 0).all()  # a missing amount contributes nothing
 
@@ -101,7 +101,7 @@ def test_pack_years_nci_examples():
     df = pd.DataFrame({"person": ["p1", "p1", "p2", "p2", "p2"], "age": [20, 60, 18, 22, 32],
                        "cig_per_day": [15, 0, 40, 60, 0]})
     df["packs"] = df["cig_per_day"] / 20
-    out = px.derive(df, px.cumulative("packs", "step", name="pack_years"), id="person", time="age")
+    out = pfx.derive(df, pfx.cumulative("packs", "step", name="pack_years"), id="person", time="age")
     assert out["pack_years"].tolist() == [0, 30, 0, 8, 38]
 
 
@@ -111,5 +111,5 @@ def test_pack_years_with_dates_in_years():
     year = pd.Timedelta(days=365.25)
     df = pd.DataFrame({"person": "p2", "visit": [start, start + 4 * year, start + 14 * year],
                        "packs": [2.0, 3.0, 0.0]})
-    out = px.derive(df, px.cumulative("packs", "step", name="pack_years"), id="person", time="visit", unit="Y")
+    out = pfx.derive(df, pfx.cumulative("packs", "step", name="pack_years"), id="person", time="visit", unit="Y")
     np.testing.assert_allclose(out["pack_years"], [0, 8, 38], rtol=1e-12)

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 
 
 def test_adam_worked_example():
@@ -14,11 +14,11 @@ def test_adam_worked_example():
     PCHG = 100 (AVAL - BASE) / BASE; a score 12 -> 6 -> 2 gives CHG -6, -10 and PCHG -50, -83.33,
     with the change fields blank on the baseline record."""
     df = pd.DataFrame({"usubjid": ["S1"] * 3, "ady": [1, 15, 29], "aval": [12.0, 6.0, 2.0]})
-    out = px.derive(
+    out = pfx.derive(
         df,
-        px.baseline("aval", name="base"),
-        px.change_from_baseline("aval", after_baseline_only=True, name="chg"),
-        px.change_from_baseline("aval", "percent", after_baseline_only=True, name="pchg"),
+        pfx.baseline("aval", name="base"),
+        pfx.change_from_baseline("aval", after_baseline_only=True, name="chg"),
+        pfx.change_from_baseline("aval", "percent", after_baseline_only=True, name="pchg"),
         id="usubjid", time="ady",
     )
     assert out["base"].tolist() == [12.0] * 3
@@ -40,7 +40,7 @@ def jobtraining() -> pd.DataFrame:
 def test_jobtraining_lag_matches_shipped_column(jobtraining):
     """linearmodels.datasets.jobtraining: lscrap_1 is the lag of lscrap (exact), grant_1 the lag of grant
     with 0 at the first year."""
-    out = px.derive(jobtraining, px.lag("lscrap", name="lag"), px.lag("grant", name="glag"),
+    out = pfx.derive(jobtraining, pfx.lag("lscrap", name="lag"), pfx.lag("grant", name="glag"),
                     id="fcode", time="year")
     pd.testing.assert_series_equal(out["lag"], jobtraining["lscrap_1"], check_names=False)
     assert (out["glag"].fillna(0) == jobtraining["grant_1"]).all()
@@ -54,7 +54,7 @@ def test_jobtraining_lag_matches_shipped_column(jobtraining):
 def test_jobtraining_differences_match_shipped_columns(jobtraining, source, shipped, atol):
     """linearmodels.datasets.jobtraining: the c* columns are within-firm first differences (stored with
     about 7 significant digits, hence the tolerances listed in ../shared/CHECK-SOURCES.md)."""
-    out = px.derive(jobtraining, px.change_from_previous(source, name="d"), id="fcode", time="year")
+    out = pfx.derive(jobtraining, pfx.change_from_previous(source, name="d"), id="fcode", time="year")
     got, want = out["d"], jobtraining[shipped]
     assert (got.isna() == want.isna()).all()
     np.testing.assert_allclose(got.dropna(), want.dropna(), atol=atol, rtol=0)
@@ -69,7 +69,7 @@ def test_baseline_and_change_span_the_same_design():
 
     g = datasets.grunfeld.load_pandas().data
     g = g[g["firm"] != "American Steel"]
-    out = px.derive(g, px.baseline("value"), px.change_from_baseline("value"), id="firm", time="year")
+    out = pfx.derive(g, pfx.baseline("value"), pfx.change_from_baseline("value"), id="firm", time="year")
     y = out["invest"].to_numpy()
     one = np.ones(len(out))
     a = np.column_stack([one, out["value_baseline"], out["value_change"]])

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 
 
 def ols(y: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -35,7 +35,7 @@ def test_grunfeld_fixed_effects(grunfeld):
     """Baltagi Table 2.1 (from memory): value 0.110124 (se 0.011857), capital 0.310065
     (se 0.017355), within R-squared 0.766758; error degrees of freedom 200 - 10 - 2 = 188."""
     assert len(grunfeld) == 200 and grunfeld["firm"].nunique() == 10
-    out = px.derive(grunfeld, *(px.within_between(c) for c in ("invest", "value", "capital")),
+    out = pfx.derive(grunfeld, *(pfx.within_between(c) for c in ("invest", "value", "capital")),
                     id="firm", time="year")
     y = out["invest_within"].to_numpy()
     X = out[["value_within", "capital_within"]].to_numpy()
@@ -51,11 +51,11 @@ def test_grunfeld_between_estimates(grunfeld):
     """Between estimates (least squares on firm means; Baltagi, from memory): value
     0.1346461, capital 0.0320315 - from the between part of within_between and from
     subject_summary's means alike."""
-    means = px.subject_summary(grunfeld, ["invest", "value", "capital"], id="firm", time="year")
+    means = pfx.subject_summary(grunfeld, ["invest", "value", "capital"], id="firm", time="year")
     b, _ = ols(means["invest_mean"].to_numpy(),
                np.column_stack([np.ones(10), means["value_mean"], means["capital_mean"]]))
     np.testing.assert_allclose(b[1:], [0.1346461, 0.0320315], atol=5e-8)
-    out = px.derive(grunfeld, *(px.within_between(c) for c in ("invest", "value", "capital")),
+    out = pfx.derive(grunfeld, *(pfx.within_between(c) for c in ("invest", "value", "capital")),
                     id="firm", time="year")
     firms = out.drop_duplicates("firm")
     np.testing.assert_allclose(firms["value_between"], means["value_mean"], rtol=1e-13)
@@ -70,6 +70,6 @@ def test_wage_panel_fixed_effects_with_year_effects():
     years = range(1981, 1988)
     w = w.assign(**{f"d{yr}": (w["year"] == yr).astype("float64") for yr in years})
     cols = ["lwage", "expersq", "married", "union", *(f"d{yr}" for yr in years)]
-    out = px.derive(w, *(px.within_between(c) for c in cols), id="nr", time="year")
+    out = pfx.derive(w, *(pfx.within_between(c) for c in cols), id="nr", time="year")
     b, _ = ols(out["lwage_within"].to_numpy(), out[[f"{c}_within" for c in cols[1:]]].to_numpy())
     np.testing.assert_allclose(b[:3], [-0.005185, 0.046680, 0.080002], atol=5e-7)

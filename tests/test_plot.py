@@ -14,7 +14,7 @@ matplotlib.use("Agg")
 import matplotlib.dates as mdates  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
 
-import panelfx as px  # noqa: E402
+import panelfx as pfx  # noqa: E402
 from panelfx import demo, plot  # noqa: E402
 from panelfx.errors import OptionError  # noqa: E402
 
@@ -66,7 +66,7 @@ def test_one_line_per_subject_with_its_observed_values(tmp_path):
 
 
 def test_seeded_sample_and_dashed_overlay(cohort, tmp_path):
-    out = px.derive(cohort, px.baseline("sbp", rule="last_before", reference="treat_start"), id=ID, time="visit_date")
+    out = pfx.derive(cohort, pfx.baseline("sbp", rule="last_before", reference="treat_start"), id=ID, time="visit_date")
     before = out.copy()
     ax = plot.trajectories(out, "sbp", id=ID, time="day", subjects=7, overlay="sbp_baseline", seed=4)
     pd.testing.assert_frame_equal(out, before)  # the input is not touched
@@ -128,7 +128,7 @@ def test_schedule_rows_and_flagged_occasions_at_the_right_place(tmp_path):
 
 
 def test_schedule_marker_counts_match_the_check_report(cohort):
-    report = px.check(cohort, id=ID, time="visit_date", spacing="30D")
+    report = pfx.check(cohort, id=ID, time="visit_date", spacing="30D")
     ax = plot.visit_schedule(cohort, id=ID, time="visit_date", spacing="30D", subjects=None)
     assert len(lines(ax, "subject")) == 60
     counts = report["problem"].value_counts()
@@ -144,7 +144,7 @@ def test_schedule_marker_counts_match_the_check_report(cohort):
 
 
 def test_schedule_sample_keeps_only_the_drawn_subjects_findings(cohort):
-    report = px.check(cohort, id=ID, time="visit_date", spacing="30D")
+    report = pfx.check(cohort, id=ID, time="visit_date", spacing="30D")
     ax = plot.visit_schedule(cohort, id=ID, time="visit_date", report=report, subjects=15, seed=2)
     drawn = {t.get_text() for t in ax.get_yticklabels()}
     assert len(drawn) == len(lines(ax, "subject")) == 15
@@ -157,7 +157,7 @@ def test_schedule_without_spacing_marks_nothing_and_options_are_checked(cohort):
     ax = plot.visit_schedule(cohort, id=ID, time="visit_date", subjects=5)
     assert [ln.get_gid() for ln in ax.get_lines()] == ["subject"] * 5
     assert ax.get_legend() is None
-    report = px.check(cohort, id=ID, time="visit_date", spacing="30D")
+    report = pfx.check(cohort, id=ID, time="visit_date", spacing="30D")
     with pytest.raises(OptionError, match="not both"):
         plot.visit_schedule(cohort, id=ID, time="visit_date", spacing="30D", report=report)
     with pytest.raises(OptionError, match="spacing"):

@@ -14,7 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import panelfx as px
+import panelfx as pfx
 from panelfx import _kernels as K
 from panelfx import _windows as W
 from panelfx.testing import assert_matches_reference, reference
@@ -30,7 +30,7 @@ def one_subject(t, y, **cols):
 
 
 def run(df, *trs, **kw):
-    return px.derive(df, *trs, id="pid", time="t", **kw)
+    return pfx.derive(df, *trs, id="pid", time="t", **kw)
 
 
 def col(df, name):
@@ -72,8 +72,8 @@ PATHS = [dict(direct=0), dict(direct=100), dict(direct=0, chunk=3, keyed=False),
 def test_closed_ends_by_hand(paths, closed, sums, counts):
     df = one_subject([0, 10, 20, 30], [1.0, 2.0, 4.0, 8.0])
     with kernels(**paths):
-        out = run(df, px.rolling("y", "sum", span=10, closed=closed, name="s"),
-                  px.rolling("y", "count", span=10, closed=closed, name="c"))
+        out = run(df, pfx.rolling("y", "sum", span=10, closed=closed, name="s"),
+                  pfx.rolling("y", "count", span=10, closed=closed, name="c"))
     np.testing.assert_array_equal(col(out, "s"), sums)
     np.testing.assert_array_equal(col(out, "c"), counts)
 
@@ -82,11 +82,11 @@ def test_closed_ends_by_hand(paths, closed, sums, counts):
 def test_windows_by_hand(paths):
     df = one_subject([0, 10, 20, 30], [1.0, 2.0, 4.0, 8.0])
     with kernels(**paths):
-        out = run(df, px.rolling("y", "sum", span=15),  # (t - 15, t]
-                  px.rolling("y", "sum", occasions=2),
-                  px.rolling("y", "sum", occasions=2, exclude_current=True),
-                  px.rolling("y", "sum"),
-                  px.rolling("y", "sum", exclude_current=True))
+        out = run(df, pfx.rolling("y", "sum", span=15),  # (t - 15, t]
+                  pfx.rolling("y", "sum", occasions=2),
+                  pfx.rolling("y", "sum", occasions=2, exclude_current=True),
+                  pfx.rolling("y", "sum"),
+                  pfx.rolling("y", "sum", exclude_current=True))
     np.testing.assert_array_equal(col(out, "y_sum_15"), [1, 3, 6, 12])
     np.testing.assert_array_equal(col(out, "y_sum_2occ"), [1, 3, 6, 12])
     np.testing.assert_array_equal(col(out, "y_sum_2occ_prior"), [NAN, 1, 3, 6])
@@ -99,8 +99,8 @@ def test_so_far_with_missing_by_hand(paths):
     # Missing values are skipped; count is never missing.
     df = one_subject([1, 2, 3, 4], [3.0, NAN, 5.0, 1.0])
     with kernels(**paths):
-        out = run(df, *(px.rolling("y", s) for s in ("max", "min", "mean", "median", "count")),
-                  px.rolling("y", "count", exclude_current=True))
+        out = run(df, *(pfx.rolling("y", s) for s in ("max", "min", "mean", "median", "count")),
+                  pfx.rolling("y", "count", exclude_current=True))
     np.testing.assert_array_equal(col(out, "y_max_sofar"), [3, 3, 5, 5])
     np.testing.assert_array_equal(col(out, "y_min_sofar"), [3, 3, 3, 1])
     np.testing.assert_array_equal(col(out, "y_mean_sofar"), [3, 3, 4, 3])
@@ -115,10 +115,10 @@ def test_min_valid_by_hand(paths):
     # Windows of 3 occasions: {1}, {1, 3}, {1, 3, NaN}, {3, NaN, 4}; at least 2 values needed.
     df = one_subject([0, 1, 2, 3], [1.0, 3.0, NAN, 4.0])
     with kernels(**paths):
-        out = run(df, px.rolling("y", occasions=3, min_valid=2),
-                  px.rolling("y", "count", occasions=3, min_valid=2),
-                  px.rolling("y", "sum", occasions=1, exclude_current=True, min_valid=0, name="s0"),
-                  px.rolling("y", "mean", occasions=1, exclude_current=True, min_valid=0, name="m0"))
+        out = run(df, pfx.rolling("y", occasions=3, min_valid=2),
+                  pfx.rolling("y", "count", occasions=3, min_valid=2),
+                  pfx.rolling("y", "sum", occasions=1, exclude_current=True, min_valid=0, name="s0"),
+                  pfx.rolling("y", "mean", occasions=1, exclude_current=True, min_valid=0, name="m0"))
     np.testing.assert_array_equal(col(out, "y_mean_3occ"), [NAN, 2, 2, 3.5])
     np.testing.assert_array_equal(col(out, "y_count_3occ"), [1, 2, 2, 2])  # never missing
     # min_valid=0: the sum over no value is 0, the mean over no value stays missing.
@@ -133,8 +133,8 @@ def test_std_var_median_by_hand(paths):
     y = [2.0, 4.0, 4.0, 4.0, 5.0, 5.0, 7.0, 9.0]
     df = one_subject(list(range(8)), y)
     with kernels(**paths):
-        out = run(df, px.rolling("y", "var"), px.rolling("y", "std"), px.rolling("y", "median"),
-                  px.rolling("y", "std", occasions=3))
+        out = run(df, pfx.rolling("y", "var"), pfx.rolling("y", "std"), pfx.rolling("y", "median"),
+                  pfx.rolling("y", "std", occasions=3))
     assert col(out, "y_var_sofar")[-1] == pytest.approx(32 / 7, rel=1e-15)
     assert col(out, "y_std_sofar")[-1] == pytest.approx(math.sqrt(32 / 7), rel=1e-15)
     assert math.isnan(col(out, "y_std_sofar")[0])  # one value: no sample std
@@ -147,15 +147,15 @@ def test_std_var_median_by_hand(paths):
 def test_datetime_ninety_days_by_hand():
     # 2024 is a leap year: 1 Jan -> 1 Mar is 60 days, 1 Jan -> 31 Mar is 90 days.
     df = one_subject(pd.to_datetime(["2024-01-01", "2024-03-01", "2024-03-31"]), [10.0, 20.0, 60.0])
-    out = run(df, px.rolling("y", span="90D"),
-              px.rolling("y", span=dt.timedelta(days=60), closed="both", name="d60"))
+    out = run(df, pfx.rolling("y", span="90D"),
+              pfx.rolling("y", span=dt.timedelta(days=60), closed="both", name="d60"))
     np.testing.assert_array_equal(col(out, "y_mean_90D"), [10, 15, 40])  # 1 Jan is out on 31 Mar
     np.testing.assert_array_equal(col(out, "d60"), [10, 15, 40])  # [t - 60D, t] keeps 1 Mar
 
 
 def test_closed_both_ninety_days_by_hand():
     df = one_subject(pd.to_datetime(["2024-01-01", "2024-03-01", "2024-03-31"]), [10.0, 20.0, 60.0])
-    out = run(df, px.rolling("y", span="90D", closed="both", name="m"))
+    out = run(df, pfx.rolling("y", span="90D", closed="both", name="m"))
     np.testing.assert_array_equal(col(out, "m"), [10, 15, 30])  # [t - 90D, t] keeps 1 Jan
 
 
@@ -163,9 +163,9 @@ def test_spans_are_elapsed_time_across_a_clock_change():
     # Europe/Berlin moves its clocks forward in the night to 31 March 2024: noon to noon is 23 hours.
     t = pd.to_datetime(["2024-03-30 12:00", "2024-03-31 12:00"]).tz_localize("Europe/Berlin")
     df = one_subject(t, [1.0, 3.0])
-    out = run(df, px.rolling("y", "sum", span="1D", name="day"),
-              px.rolling("y", "sum", span="23h", name="right"),
-              px.rolling("y", "sum", span="23h", closed="both", name="both"))
+    out = run(df, pfx.rolling("y", "sum", span="1D", name="day"),
+              pfx.rolling("y", "sum", span="23h", name="right"),
+              pfx.rolling("y", "sum", span="23h", closed="both", name="both"))
     np.testing.assert_array_equal(col(out, "day"), [1, 4])
     np.testing.assert_array_equal(col(out, "right"), [1, 3])
     np.testing.assert_array_equal(col(out, "both"), [1, 4])
@@ -173,7 +173,7 @@ def test_spans_are_elapsed_time_across_a_clock_change():
 
 def test_timedelta_times_by_hand():
     df = one_subject(pd.to_timedelta([0, 6, 12, 30], unit="h"), [1.0, 2.0, 3.0, 4.0])
-    out = run(df, px.rolling("y", "sum", span="12h"), px.rolling("y", "max", span="1D", closed="both"))
+    out = run(df, pfx.rolling("y", "sum", span="12h"), pfx.rolling("y", "max", span="1D", closed="both"))
     np.testing.assert_array_equal(col(out, "y_sum_12h"), [1, 3, 5, 4])
     np.testing.assert_array_equal(col(out, "y_max_1D"), [1, 2, 3, 4])
 
@@ -182,7 +182,7 @@ def test_caller_order_index_and_subjects_kept():
     df = pd.DataFrame({"pid": ["b", "a", "b", "a", "a"], "t": [2, 3, 1, 1, 2],
                        "y": [20.0, 3.0, 10.0, 1.0, 2.0]}, index=[50, 40, 30, 20, 10])
     before = df.copy()
-    out = run(df, px.rolling("y", "sum", occasions=2))
+    out = run(df, pfx.rolling("y", "sum", occasions=2))
     pd.testing.assert_frame_equal(df, before)
     assert list(out.index) == [50, 40, 30, 20, 10]
     np.testing.assert_array_equal(col(out, "y_sum_2occ"), [30, 5, 10, 1, 3])
@@ -192,7 +192,7 @@ def test_caller_order_index_and_subjects_kept():
 def test_infinities_follow_ieee(paths):
     df = one_subject([1, 2, 3, 4], [1.0, INF, 2.0, -INF])
     with kernels(**paths):
-        out = run(df, *(px.rolling("y", s) for s in ("sum", "mean", "max", "min", "median", "std")))
+        out = run(df, *(pfx.rolling("y", s) for s in ("sum", "mean", "max", "min", "median", "std")))
     np.testing.assert_array_equal(col(out, "y_sum_sofar"), [1, INF, INF, NAN])
     np.testing.assert_array_equal(col(out, "y_mean_sofar"), [1, INF, INF, NAN])
     np.testing.assert_array_equal(col(out, "y_max_sofar"), [1, INF, INF, INF])
@@ -203,7 +203,7 @@ def test_infinities_follow_ieee(paths):
 
 def test_bool_column_is_zero_one():
     df = one_subject([1, 2, 3, 4], [0.0] * 4, hit=[True, False, True, True])
-    out = run(df, px.rolling("hit", "mean", occasions=2), px.rolling("hit", "sum"))
+    out = run(df, pfx.rolling("hit", "mean", occasions=2), pfx.rolling("hit", "sum"))
     np.testing.assert_array_equal(col(out, "hit_mean_2occ"), [1, 0.5, 0.5, 1])
     np.testing.assert_array_equal(col(out, "hit_sum_sofar"), [1, 1, 2, 3])
 
@@ -211,7 +211,7 @@ def test_bool_column_is_zero_one():
 def test_empty_frame():
     df = pd.DataFrame({"pid": pd.Series([], dtype="int64"), "t": pd.Series([], dtype="float64"),
                        "y": pd.Series([], dtype="float64")})
-    out = run(df, px.rolling("y", "max", span=3), px.rolling("y", "count"))
+    out = run(df, pfx.rolling("y", "max", span=3), pfx.rolling("y", "count"))
     assert len(out) == 0 and list(out.columns) == ["pid", "t", "y", "y_max_3", "y_count_sofar"]
 
 
@@ -223,8 +223,8 @@ def test_small_windows_after_a_huge_value(paths):
     y = [1e12, 1.0, 2.0, 3.0, 5.0, 5.0, 5.0]
     df = one_subject(list(range(7)), y)
     with kernels(**paths):
-        out = run(df, px.rolling("y", "mean", span=2), px.rolling("y", "std", span=3),
-                  px.rolling("y", "sum", span=2))
+        out = run(df, pfx.rolling("y", "mean", span=2), pfx.rolling("y", "std", span=3),
+                  pfx.rolling("y", "sum", span=2))
     np.testing.assert_array_equal(col(out, "y_mean_2")[2:], [1.5, 2.5, 4, 5, 5])
     np.testing.assert_array_equal(col(out, "y_sum_2")[2:], [3, 5, 8, 10, 10])
     assert col(out, "y_std_3")[-1] == 0.0  # the flat window {5, 5, 5}: exactly 0
@@ -238,7 +238,7 @@ def test_large_level_small_spread():
     n = 3000
     y = 1e9 + rng.normal(0, 1, n)
     df = one_subject(np.arange(n) * 1.0, y)
-    out = run(df, px.rolling("y", "std", span=50), px.rolling("y", "mean", span=50))
+    out = run(df, pfx.rolling("y", "std", span=50), pfx.rolling("y", "mean", span=50))
     k = 50
     want_std = np.array([np.std(y[max(0, i - k + 1): i + 1], ddof=1) if i else NAN for i in range(n)])
     want_mean = np.array([math.fsum(y[max(0, i - k + 1): i + 1]) / (i + 1 - max(0, i - k + 1)) for i in range(n)])
@@ -258,7 +258,7 @@ def test_long_subject_against_sliding_windows(paths):
     df = pd.DataFrame({"pid": np.repeat([1, 2], [n - 200, 200]), "t": np.r_[np.arange(n - 200), np.arange(200)],
                        "y": y})
     with kernels(**paths):
-        out = run(df, *(px.rolling("y", s, occasions=k) for s in ("min", "max", "median", "mean", "std")))
+        out = run(df, *(pfx.rolling("y", s, occasions=k) for s in ("min", "max", "median", "mean", "std")))
     for stat, fn in (("min", np.min), ("max", np.max), ("median", np.median), ("mean", np.mean),
                      ("std", lambda a, axis: np.std(a, axis=axis, ddof=1))):
         want = []
@@ -290,7 +290,7 @@ def configs(draw, case) -> Rolling:
             kw["span"] = draw(st.sampled_from(["1D", "36h", "10D", "20D", "40D", "100D"]))
         kw["closed"] = draw(st.sampled_from(CLOSED))
     kw["min_valid"] = draw(st.integers(0, min(3, kw.get("occasions", 3))))
-    return px.rolling(draw(st.sampled_from(["y", "y", "x", "flag", "dose"])), draw(st.sampled_from(STATS)), **kw)
+    return pfx.rolling(draw(st.sampled_from(["y", "y", "x", "flag", "dose"])), draw(st.sampled_from(STATS)), **kw)
 
 
 def _assert_close_to_reference(got, want, tr, frame, case):
@@ -319,7 +319,7 @@ def test_matches_reference(case, data, paths):
     """Every statistic and window kind equals the per-row loop reference, on every internal path."""
     tr = data.draw(configs(case), label="transform")
     with kernels(**paths):
-        got = px.derive(case.frame, tr, **case.keys)
+        got = pfx.derive(case.frame, tr, **case.keys)
     want = reference(case.frame, tr, **case.keys)
     _assert_close_to_reference(got, want, tr, case.frame, case)
 
@@ -328,38 +328,38 @@ def test_matches_reference(case, data, paths):
 @given(case=panels(), k=st.integers(1, 5), stat=st.sampled_from(STATS))
 def test_leaving_out_the_current_occasion_is_a_window_of_the_lag(case, k, stat):
     """The k occasions before the current one are the k occasions ending at it, of the lag."""
-    lagged = px.derive(case.frame, px.lag("y", name="y_prev"), **case.keys)
-    a = px.derive(lagged, px.rolling("y", stat, occasions=k, exclude_current=True, name="a"), **case.keys)
-    b = px.derive(lagged, px.rolling("y_prev", stat, occasions=k, name="b"), **case.keys)
+    lagged = pfx.derive(case.frame, pfx.lag("y", name="y_prev"), **case.keys)
+    a = pfx.derive(lagged, pfx.rolling("y", stat, occasions=k, exclude_current=True, name="a"), **case.keys)
+    b = pfx.derive(lagged, pfx.rolling("y_prev", stat, occasions=k, name="b"), **case.keys)
     np.testing.assert_allclose(col(a, "a"), col(b, "b"), rtol=1e-12, atol=1e-9)
 
 
 # ---------------------------------------------------------------------------- options
 def test_default_names():
-    assert px.rolling("sbp", span=90).outputs() == ("sbp_mean_90",)
-    assert px.rolling("sbp", span=2.5).outputs() == ("sbp_mean_2.5",)
-    assert px.rolling("sbp", span="90D").outputs() == ("sbp_mean_90D",)
-    assert px.rolling("sbp", "median", span=pd.Timedelta(hours=36)).outputs() == ("sbp_median_36h",)
-    assert px.rolling("sbp", occasions=3).outputs() == ("sbp_mean_3occ",)
-    assert px.rolling("sbp", "max").outputs() == ("sbp_max_sofar",)
-    assert px.rolling("sbp", "max", exclude_current=True).outputs() == ("sbp_max_sofar_prior",)
-    assert px.rolling("sbp", "std", occasions=4, name="sd4").outputs() == ("sd4",)
+    assert pfx.rolling("sbp", span=90).outputs() == ("sbp_mean_90",)
+    assert pfx.rolling("sbp", span=2.5).outputs() == ("sbp_mean_2.5",)
+    assert pfx.rolling("sbp", span="90D").outputs() == ("sbp_mean_90D",)
+    assert pfx.rolling("sbp", "median", span=pd.Timedelta(hours=36)).outputs() == ("sbp_median_36h",)
+    assert pfx.rolling("sbp", occasions=3).outputs() == ("sbp_mean_3occ",)
+    assert pfx.rolling("sbp", "max").outputs() == ("sbp_max_sofar",)
+    assert pfx.rolling("sbp", "max", exclude_current=True).outputs() == ("sbp_max_sofar_prior",)
+    assert pfx.rolling("sbp", "std", occasions=4, name="sd4").outputs() == ("sd4",)
 
 
 def test_options_are_plain_values_and_round_trip():
-    tr = px.rolling("sbp", "std", span=dt.timedelta(days=90), closed="both", min_valid=2, exclude_current=True)
+    tr = pfx.rolling("sbp", "std", span=dt.timedelta(days=90), closed="both", min_valid=2, exclude_current=True)
     assert tr.span == "90D"
     opts = json.loads(json.dumps(tr.options()))
     assert Rolling(**opts) == tr
-    assert tr.past_only and px.rolling("y").past_only
+    assert tr.past_only and pfx.rolling("y").past_only
 
 
 def test_describe_states_the_window():
-    assert "(t - 90D, t]" in px.rolling("y", span="90D").describe()
-    assert "[t - 90D, t)" in px.rolling("y", span="90D", closed="both", exclude_current=True).describe()
-    assert "3 occasion(s) before the current one" in px.rolling("y", occasions=3, exclude_current=True).describe()
-    assert "fewer than 2" in px.rolling("y", "std").describe()
-    assert "never missing" in px.rolling("y", "count").describe()
+    assert "(t - 90D, t]" in pfx.rolling("y", span="90D").describe()
+    assert "[t - 90D, t)" in pfx.rolling("y", span="90D", closed="both", exclude_current=True).describe()
+    assert "3 occasion(s) before the current one" in pfx.rolling("y", occasions=3, exclude_current=True).describe()
+    assert "fewer than 2" in pfx.rolling("y", "std").describe()
+    assert "never missing" in pfx.rolling("y", "count").describe()
 
 
 # ---------------------------------------------------------------------------- errors
@@ -393,14 +393,14 @@ def test_describe_states_the_window():
 ])
 def test_bad_options(kw, words):
     stat = kw.pop("stat", "mean")
-    with pytest.raises(px.OptionError) as err:
-        px.rolling("y", stat, **kw)
+    with pytest.raises(pfx.OptionError) as err:
+        pfx.rolling("y", stat, **kw)
     assert words in str(err.value)
 
 
 def test_bad_column_name():
-    with pytest.raises(px.OptionError, match="col must be a column name"):
-        px.rolling(3)
+    with pytest.raises(pfx.OptionError, match="col must be a column name"):
+        pfx.rolling(3)
 
 
 @pytest.mark.parametrize("t, span, words", [
@@ -409,17 +409,17 @@ def test_bad_column_name():
     (pd.to_timedelta([0, 1, 2], unit="h"), 2.0, "give a timedelta or a string"),
 ])
 def test_span_must_fit_the_time_column(t, span, words):
-    with pytest.raises(px.OptionError, match=words):
-        run(one_subject(t, [1.0, 2.0, 3.0]), px.rolling("y", span=span))
+    with pytest.raises(pfx.OptionError, match=words):
+        run(one_subject(t, [1.0, 2.0, 3.0]), pfx.rolling("y", span=span))
 
 
 def test_text_and_datetime_values_are_errors():
     df = one_subject([0, 1, 2], [1.0, 2.0, 3.0], note=["a", "b", "c"], when=pd.to_datetime(["2024-01-01"] * 3))
-    with pytest.raises(px.ColumnTypeError, match="note"):
-        run(df, px.rolling("note", span=2))
-    with pytest.raises(px.ColumnTypeError, match="when"):
-        run(df, px.rolling("when", "max"))
-    with pytest.raises(px.MissingColumnError, match="nope"):
-        run(df, px.rolling("nope"))
-    with pytest.raises(px.ColumnExistsError, match="y_mean_2"):
-        run(df, px.rolling("y", span=2), px.rolling("y", span=2, closed="both"))
+    with pytest.raises(pfx.ColumnTypeError, match="note"):
+        run(df, pfx.rolling("note", span=2))
+    with pytest.raises(pfx.ColumnTypeError, match="when"):
+        run(df, pfx.rolling("when", "max"))
+    with pytest.raises(pfx.MissingColumnError, match="nope"):
+        run(df, pfx.rolling("nope"))
+    with pytest.raises(pfx.ColumnExistsError, match="y_mean_2"):
+        run(df, pfx.rolling("y", span=2), pfx.rolling("y", span=2, closed="both"))

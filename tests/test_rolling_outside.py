@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import panelfx as px
+import panelfx as pfx
 
 duckdb = pytest.importorskip("duckdb")
 
@@ -50,7 +50,7 @@ def duck(frame: pd.DataFrame, frame_clause: str, order: str) -> pd.DataFrame:
 
 
 def ours(frame: pd.DataFrame, time: str, **window) -> pd.DataFrame:
-    out = px.derive(frame, *(px.rolling("sbp", s, name=s, **window) for s in STATS), id="pid", time=time)
+    out = pfx.derive(frame, *(pfx.rolling("sbp", s, name=s, **window) for s in STATS), id="pid", time=time)
     return out.set_index("row")[STATS]
 
 

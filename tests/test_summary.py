@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 
-import panelfx as px
+import panelfx as pfx
 from panelfx.testing import assert_matches_reference
 from panelfx.testing.reference.summary import subject_summary as reference_summary
 from panelfx.testing.strategies import ALL_ID_KINDS, ALL_TIME_KINDS, VALUE_KINDS, panels
@@ -22,7 +22,7 @@ NAN = math.nan
 def test_rows_by_hand():
     df = pd.DataFrame({"pid": ["b", "a", "a", "b", "a", "c"], "t": [4, 6, 0, 0, 2, 1],
                        "y": [1.0, 7.0, 1.0, 5.0, NAN, NAN]})
-    out = px.subject_summary(df, "y", id="pid", time="t")
+    out = pfx.subject_summary(df, "y", id="pid", time="t")
     assert out["pid"].tolist() == ["b", "a", "c"]  # order of first appearance
     assert out["n_occasions"].tolist() == [2, 3, 1]
     assert out["first_time"].tolist() == [0, 0, 1] and out["last_time"].tolist() == [4, 6, 1]
@@ -41,7 +41,7 @@ def test_datetimes_several_columns_and_ids():
     df = pd.DataFrame({"site": ["A", "A", "B"], "pid": [1, 1, 1],
                        "t": pd.to_datetime(["2024-01-01", "2024-01-15", "2024-01-01"]).tz_localize("UTC"),
                        "u": [1.0, 2.0, 3.0], "v": [0, 14, 5]})
-    out = px.subject_summary(df, ["u", "v"], id=["site", "pid"], time="t", unit="W")
+    out = pfx.subject_summary(df, ["u", "v"], id=["site", "pid"], time="t", unit="W")
     assert list(out.columns[:5]) == ["site", "pid", "n_occasions", "first_time", "last_time"]
     assert out["first_time"].dtype == df["t"].dtype
     np.testing.assert_array_equal(out["follow_up"], [2, 0])
@@ -54,7 +54,7 @@ def test_datetimes_several_columns_and_ids():
 @given(case=panels(time_kinds=ALL_TIME_KINDS, value_kinds=VALUE_KINDS, id_kinds=ALL_ID_KINDS))
 def test_matches_reference(case):
     """Every summary column equals the per-subject loop reference."""
-    got = px.subject_summary(case.frame, ["y", "x", "dose"], **case.keys)
+    got = pfx.subject_summary(case.frame, ["y", "x", "dose"], **case.keys)
     want = reference_summary(case.frame, ["y", "x", "dose"], **case.keys)
     assert list(got.columns) == list(want.columns)
     ids = [case.id] if isinstance(case.id, str) else list(case.id)
@@ -77,7 +77,7 @@ def test_slope_and_area_against_numpy_and_scipy():
     pig by pig, on the weights of the statsmodels dietox test file."""
     integrate = pytest.importorskip("scipy.integrate")
     df = dietox()
-    out = px.subject_summary(df, "Weight", id="Pig", time="Time").set_index("Pig")
+    out = pfx.subject_summary(df, "Weight", id="Pig", time="Time").set_index("Pig")
     assert len(out) == 72
     for pig, rows in df.groupby("Pig"):
         rows = rows.sort_values("Time")
@@ -94,23 +94,23 @@ def frame():
 
 
 @pytest.mark.parametrize("cols, error, words", [
-    ("txt", px.ColumnTypeError, "'txt'"),
-    ("nope", px.MissingColumnError, "'nope'"),
-    ("pid", px.OptionError, "id or time column 'pid'"),
-    ("t", px.OptionError, "id or time column 't'"),
-    ([], px.OptionError, "cols must be a column name"),
-    (["y", "y"], px.OptionError, "names a column twice"),
-    ([1], px.OptionError, "cols must be a column name"),
+    ("txt", pfx.ColumnTypeError, "'txt'"),
+    ("nope", pfx.MissingColumnError, "'nope'"),
+    ("pid", pfx.OptionError, "id or time column 'pid'"),
+    ("t", pfx.OptionError, "id or time column 't'"),
+    ([], pfx.OptionError, "cols must be a column name"),
+    (["y", "y"], pfx.OptionError, "names a column twice"),
+    ([1], pfx.OptionError, "cols must be a column name"),
 ])
 def test_bad_columns(cols, error, words):
     with pytest.raises(error, match=words):
-        px.subject_summary(frame(), cols, id="pid", time="t")
+        pfx.subject_summary(frame(), cols, id="pid", time="t")
 
 
 def test_bad_panel():
-    with pytest.raises(px.DuplicateOccasionError):
-        px.subject_summary(frame().assign(t=[0, 0]), "y", id="pid", time="t")
-    with pytest.raises(px.TimeTypeError):
-        px.subject_summary(frame(), "y", id="pid", time="txt")
-    with pytest.raises(px.OptionError, match="unit="):
-        px.subject_summary(frame(), "y", id="pid", time="t", unit="D")
+    with pytest.raises(pfx.DuplicateOccasionError):
+        pfx.subject_summary(frame().assign(t=[0, 0]), "y", id="pid", time="t")
+    with pytest.raises(pfx.TimeTypeError):
+        pfx.subject_summary(frame(), "y", id="pid", time="txt")
+    with pytest.raises(pfx.OptionError, match="unit="):
+        pfx.subject_summary(frame(), "y", id="pid", time="t", unit="D")

@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 from hypothesis import find, given, settings
 
-import panelfx as px
+import panelfx as pfx
 from panelfx._panel import Panel
 from panelfx._transform import Transform
 from panelfx.testing import (
@@ -46,7 +46,7 @@ def message(excinfo: pytest.ExceptionInfo[AssertionError]) -> str:
 
 # --------------------------------------------------------------------------- constant within
 def test_constant_within_passes_on_a_carried_baseline():
-    out = px.derive(visits(), px.baseline("y"), id="pid", time="day")
+    out = pfx.derive(visits(), pfx.baseline("y"), id="pid", time="day")
     assert_constant_within(out, "y_baseline", id="pid")
 
 
@@ -130,12 +130,12 @@ class _PeekNext(Transform):
 
 
 def test_past_only_passes_for_past_only_transforms():
-    assert_past_only(visits(), px.lag("y"), px.change_from_previous("y", "rate"), id="pid", time="day")
+    assert_past_only(visits(), pfx.lag("y"), pfx.change_from_previous("y", "rate"), id="pid", time="day")
 
 
 def test_past_only_refuses_a_transform_that_declares_the_future():
     with pytest.raises(AssertionError, match=r"transform #2 \(baseline\) declares that it uses later"):
-        assert_past_only(visits(), px.lag("y"), px.baseline("y"), id="pid", time="day")
+        assert_past_only(visits(), pfx.lag("y"), pfx.baseline("y"), id="pid", time="day")
 
 
 def test_past_only_catches_a_transform_that_lies():
@@ -152,7 +152,7 @@ def test_past_only_samples_ranks_on_long_subjects():
     df = pd.DataFrame({"pid": np.repeat([1, 2], n), "day": np.tile(np.arange(n), 2),
                        "y": np.arange(2 * n, dtype=float)})
     calls = []
-    real = px.derive
+    real = pfx.derive
 
     def counting(*a, **k):
         calls.append(1)
@@ -163,7 +163,7 @@ def test_past_only_samples_ranks_on_long_subjects():
     old = A.derive
     A.derive = counting
     try:
-        assert_past_only(df, px.lag("y"), id="pid", time="day", max_ranks=5)
+        assert_past_only(df, pfx.lag("y"), id="pid", time="day", max_ranks=5)
         assert len(calls) == 1 + 5
         with pytest.raises(AssertionError):
             assert_past_only(df, _PeekNext(col="y"), id="pid", time="day", max_ranks=3)
@@ -174,8 +174,8 @@ def test_past_only_samples_ranks_on_long_subjects():
 # --------------------------------------------------------------------------- re-derivation
 def test_derived_from_passes_and_names_the_changed_row():
     src = visits()
-    steps = (px.baseline("y"), px.change_from_baseline("y"))
-    stored = px.derive(src, *steps, id="pid", time="day")
+    steps = (pfx.baseline("y"), pfx.change_from_baseline("y"))
+    stored = pfx.derive(src, *steps, id="pid", time="day")
     assert_derived_from(stored, src, *steps, id="pid", time="day")
     tampered = stored.copy()
     tampered.loc["r2", "y_change"] = 0.5
@@ -188,27 +188,27 @@ def test_derived_from_passes_and_names_the_changed_row():
 
 def test_derived_from_source_columns_and_missing_outputs():
     src = visits()
-    stored = px.derive(src, px.lag("y"), id="pid", time="day")
+    stored = pfx.derive(src, pfx.lag("y"), id="pid", time="day")
     with pytest.raises(AssertionError, match="differs from the source"):
-        assert_derived_from(stored.assign(y=stored["y"] + 1), src, px.lag("y"), id="pid", time="day")
+        assert_derived_from(stored.assign(y=stored["y"] + 1), src, pfx.lag("y"), id="pid", time="day")
     with pytest.raises(AssertionError, match=r"lacks column\(s\) \['y_lag1'\]"):
-        assert_derived_from(src, src, px.lag("y"), id="pid", time="day")
+        assert_derived_from(src, src, pfx.lag("y"), id="pid", time="day")
 
 
 def test_derived_from_matches_rows_by_keys_after_a_file_round_trip():
     """A frame written to CSV and read back lost its index and integer dtypes."""
     src = visits()
-    stored = px.derive(src, px.lag("y"), px.baseline("y"), id="pid", time="day")
+    stored = pfx.derive(src, pfx.lag("y"), pfx.baseline("y"), id="pid", time="day")
     back = stored.sort_values(["pid", "day"]).reset_index(drop=True)
     with pytest.raises(AssertionError, match="row labels not in the source"):
-        assert_derived_from(back, src, px.lag("y"), px.baseline("y"), id="pid", time="day")
-    assert_derived_from(back, src, px.lag("y"), px.baseline("y"), id="pid", time="day", match="keys")
+        assert_derived_from(back, src, pfx.lag("y"), pfx.baseline("y"), id="pid", time="day")
+    assert_derived_from(back, src, pfx.lag("y"), pfx.baseline("y"), id="pid", time="day", match="keys")
     floats = back.assign(day=back["day"].astype("float64"))
     with pytest.raises(AssertionError, match="dtype float64 but its re-derivation has int64"):
-        assert_derived_from(floats, src, px.lag("y"), id="pid", time="day", match="keys")
+        assert_derived_from(floats, src, pfx.lag("y"), id="pid", time="day", match="keys")
     floats.loc[0, "day"] = 99.0
     with pytest.raises(AssertionError, match="keys not found"):
-        assert_derived_from(floats, src, px.lag("y"), id="pid", time="day", match="keys", check_dtype=False)
+        assert_derived_from(floats, src, pfx.lag("y"), id="pid", time="day", match="keys", check_dtype=False)
 
 
 # --------------------------------------------------------------------------- structure
@@ -236,8 +236,8 @@ def test_panel_structure_with_a_visit_schedule():
 # --------------------------------------------------------------------------- matches reference
 def test_matches_reference_message_and_lengths():
     df = visits()
-    got = px.derive(df, px.lag("y"), id="pid", time="day")
-    want = reference(df, px.lag("y"), id="pid", time="day")
+    got = pfx.derive(df, pfx.lag("y"), id="pid", time="day")
+    want = reference(df, pfx.lag("y"), id="pid", time="day")
     assert_matches_reference(got, want, ["y_lag1"], id="pid", time="day")
     wrong = got.assign(y_lag1=got["y_lag1"].fillna(0.0))
     with pytest.raises(AssertionError) as ei:
@@ -264,7 +264,7 @@ def test_matches_reference_tolerance_and_text():
 def test_reference_leaves_input_alone_and_refuses_unknown_types():
     df = visits()
     before = df.copy()
-    reference(df, px.baseline("y"), px.lag("y"), id="pid", time="day")
+    reference(df, pfx.baseline("y"), pfx.lag("y"), id="pid", time="day")
     pd.testing.assert_frame_equal(df, before)
     with pytest.raises(NotImplementedError, match="no reference implementation"):
         reference(df, _PeekNext(col="y"), id="pid", time="day")
@@ -294,15 +294,15 @@ def test_strategies_need_hypothesis_with_a_clear_message():
 
 def test_the_kit_never_changes_its_input():
     df = visits()
-    stored = px.derive(df, px.baseline("y"), id="pid", time="day")
+    stored = pfx.derive(df, pfx.baseline("y"), id="pid", time="day")
     frames = {"df": df, "stored": stored}
     before = {k: v.copy(deep=True) for k, v in frames.items()}
     assert_constant_within(stored, "y_baseline", id="pid")
     assert_non_decreasing_within(df.assign(y=df["day"]), "y", id="pid", time="day")
-    assert_past_only(df, px.lag("y"), id="pid", time="day")
-    assert_derived_from(stored, df, px.baseline("y"), id="pid", time="day", match="keys")
+    assert_past_only(df, pfx.lag("y"), id="pid", time="day")
+    assert_derived_from(stored, df, pfx.baseline("y"), id="pid", time="day", match="keys")
     assert_panel_structure(df, id="pid", time="day")
-    reference(df, px.baseline("y"), id="pid", time="day")
+    reference(df, pfx.baseline("y"), id="pid", time="day")
     for k, v in frames.items():
         pd.testing.assert_frame_equal(v, before[k], check_exact=True)
 
@@ -370,7 +370,7 @@ def test_panels_cover_the_promised_cases():
     collect_extremes()
     assert any(extremes)
     empty = find(panels(subjects=(0, 2)), lambda c: len(c.frame) == 0, settings=settings(database=None))
-    assert len(px.derive(empty.frame, px.lag("y"), px.baseline("y"), **empty.keys)) == 0
+    assert len(pfx.derive(empty.frame, pfx.lag("y"), pfx.baseline("y"), **empty.keys)) == 0
 
 
 @pytest.mark.parametrize("kinds", [{"id_kinds": ("bogus",)}, {"time_kinds": ()}, {"index_kinds": ("x",)}])
@@ -415,7 +415,7 @@ def test_readme_failure_message_is_real():
     shown = section.split("```text\n")[1].split("```")[0].strip()
     visits = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 61, 0, 29],
                            "sbp": [152.0, 147.0, None, 139.0, 141.0], "dose_mg": [0.0, 50.0, 50.0, 0.0, 25.0]})
-    out = px.derive(visits, px.cumulative("dose_mg"), id="pid", time="day")
+    out = pfx.derive(visits, pfx.cumulative("dose_mg"), id="pid", time="day")
     out.loc[4, "dose_mg_cum"] = -5.0
     with pytest.raises(AssertionError) as ei:
         assert_non_decreasing_within(out, "dose_mg_cum", id="pid", time="day")

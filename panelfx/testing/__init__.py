@@ -67,12 +67,12 @@ def assert_matches_reference(
     mismatches and the first mismatching row labels (and subject ids and times when
     ``id`` and ``time`` are given), with the values got and expected.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> from panelfx.testing import assert_matches_reference, reference
     >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 7, 0], "y": [1.0, 3.0, 5.0]})
-    >>> got = px.derive(df, px.lag("y"), id="pid", time="day")
-    >>> assert_matches_reference(got, reference(df, px.lag("y"), id="pid", time="day"))
-    >>> assert_matches_reference(got.assign(y_lag1=0.0), reference(df, px.lag("y"), id="pid", time="day"),
+    >>> got = pfx.derive(df, pfx.lag("y"), id="pid", time="day")
+    >>> assert_matches_reference(got, reference(df, pfx.lag("y"), id="pid", time="day"))
+    >>> assert_matches_reference(got.assign(y_lag1=0.0), reference(df, pfx.lag("y"), id="pid", time="day"),
     ...                          id="pid", time="day")
     Traceback (most recent call last):
     ...

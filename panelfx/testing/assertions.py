@@ -264,11 +264,11 @@ def assert_past_only(
     Numbers are compared with ``rtol`` / ``atol`` (the running sums of a cut frame may
     round differently in the last digits), everything else exactly.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> from panelfx.testing import assert_past_only
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2], "day": [0, 7, 14, 0], "y": [1.0, 3.0, 2.0, 5.0]})
-    >>> assert_past_only(df, px.lag("y"), px.change_from_previous("y"), id="pid", time="day")
-    >>> assert_past_only(df, px.lag("y", -1), id="pid", time="day")
+    >>> assert_past_only(df, pfx.lag("y"), pfx.change_from_previous("y"), id="pid", time="day")
+    >>> assert_past_only(df, pfx.lag("y", -1), id="pid", time="day")
     Traceback (most recent call last):
     ...
     AssertionError: transform #1 (lag) declares that it uses later occasions (past_only is False): ...
@@ -335,13 +335,13 @@ def assert_derived_from(
     compared with ``rtol`` / ``atol``, anything else exactly; ``check_dtype=False``
     ignores dtype differences (e.g. integers read back as floats).
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> from panelfx.testing import assert_derived_from
     >>> src = pd.DataFrame({"pid": [1, 1, 2], "day": [0, 7, 0], "y": [1.0, 3.0, 5.0]})
-    >>> stored = px.derive(src, px.baseline("y"), id="pid", time="day")
-    >>> assert_derived_from(stored, src, px.baseline("y"), id="pid", time="day")
+    >>> stored = pfx.derive(src, pfx.baseline("y"), id="pid", time="day")
+    >>> assert_derived_from(stored, src, pfx.baseline("y"), id="pid", time="day")
     >>> stored.loc[1, "y_baseline"] = 3.0
-    >>> assert_derived_from(stored, src, px.baseline("y"), id="pid", time="day")
+    >>> assert_derived_from(stored, src, pfx.baseline("y"), id="pid", time="day")
     Traceback (most recent call last):
     ...
     AssertionError: column 'y_baseline' differs from its re-derivation: 1 subject(s), 1 row(s)

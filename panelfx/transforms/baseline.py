@@ -69,10 +69,10 @@ def baseline(
     baseline is missing).  Not past-only: the baseline can come from a later occasion.
     Default name: ``<col>_baseline``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 60, 0, 30],
     ...                    "sbp": [None, 150, 140, 162, 158]})
-    >>> px.derive(df, px.baseline("sbp"), id="pid", time="day")
+    >>> pfx.derive(df, pfx.baseline("sbp"), id="pid", time="day")
        pid  day    sbp  sbp_baseline
     0    1    0    NaN         150.0
     1    1   30  150.0         150.0

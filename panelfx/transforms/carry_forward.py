@@ -81,10 +81,10 @@ def carry_forward(
     limits.  Never carried from one subject to the next.  Works on any dtype (numbers,
     text, categories) and keeps it.  Past-only.  Default name: ``<col>_filled``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 30, 60, 200, 0],
     ...                    "bmi": [None, 27.1, None, None, 31.0]})
-    >>> px.derive(df, px.carry_forward("bmi"), px.carry_forward("bmi", max_span=90, name="bmi_90"),
+    >>> pfx.derive(df, pfx.carry_forward("bmi"), pfx.carry_forward("bmi", max_span=90, name="bmi_90"),
     ...           id="pid", time="day")
        pid  day   bmi  bmi_filled  bmi_90
     0    1    0   NaN         NaN     NaN

@@ -84,11 +84,11 @@ def change_from_baseline(
     change on the baseline record) want.  Not past-only.  Default names:
     ``<col>_change``, ``<col>_pct_change``, ``<col>_ratio``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 60, 0, 30],
     ...                    "score": [12, 6, 2, 0, 4]})
-    >>> px.derive(df, px.change_from_baseline("score"),
-    ...           px.change_from_baseline("score", "percent"), id="pid", time="day")
+    >>> pfx.derive(df, pfx.change_from_baseline("score"),
+    ...           pfx.change_from_baseline("score", "percent"), id="pid", time="day")
        pid  day  score  score_change  score_pct_change
     0    1    0     12           0.0          0.000000
     1    1   30      6          -6.0        -50.000000

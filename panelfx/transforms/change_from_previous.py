@@ -84,11 +84,11 @@ def change_from_previous(
     the subject's first occasion; percent also where the previous value is 0.  Past-only.
     Default names: ``<col>_diff``, ``<col>_pct_diff``, ``<col>_rate``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1], "day": [0, 10, 20, 40],
     ...                    "wt": [80.0, None, 78.0, 77.0]})
-    >>> px.derive(df, px.change_from_previous("wt"),
-    ...           px.change_from_previous("wt", "rate", skip_missing=True), id="pid", time="day")
+    >>> pfx.derive(df, pfx.change_from_previous("wt"),
+    ...           pfx.change_from_previous("wt", "rate", skip_missing=True), id="pid", time="day")
        pid  day    wt  wt_diff  wt_rate
     0    1    0  80.0      NaN      NaN
     1    1   10   NaN      NaN      NaN

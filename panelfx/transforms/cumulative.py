@@ -138,11 +138,11 @@ def cumulative(
     Past-only.  Output float64.  Default names: ``<col>_cum``, ``<col>_cum_step``,
     ``<col>_auc``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 1, 3, 6, 0],
     ...                    "mg": [2.0, 4.0, 4.0, 1.0, 5.0]})
-    >>> px.derive(df, px.cumulative("mg"), px.cumulative("mg", "step"),
-    ...           px.cumulative("mg", "trapezoid"), id="pid", time="day")
+    >>> pfx.derive(df, pfx.cumulative("mg"), pfx.cumulative("mg", "step"),
+    ...           pfx.cumulative("mg", "trapezoid"), id="pid", time="day")
        pid  day   mg  mg_cum  mg_cum_step  mg_auc
     0    1    0  2.0     2.0          0.0     0.0
     1    1    1  4.0     6.0          2.0     3.0

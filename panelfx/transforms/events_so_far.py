@@ -35,11 +35,11 @@ def events_so_far(col: str, *, include_current: bool = True, name: str | None = 
     ("number of prior events").  Missing values: a missing flag is not an event, so the
     count is never missing.  Past-only.  Output int64.  Default name: ``<col>_count``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "wk": [1, 2, 3, 4, 1],
     ...                    "admitted": [1, 0, None, 1, 0]})
-    >>> px.derive(df, px.events_so_far("admitted"),
-    ...           px.events_so_far("admitted", include_current=False, name="prior"), id="pid", time="wk")
+    >>> pfx.derive(df, pfx.events_so_far("admitted"),
+    ...           pfx.events_so_far("admitted", include_current=False, name="prior"), id="pid", time="wk")
        pid  wk  admitted  admitted_count  prior
     0    1   1       1.0               1      0
     1    1   2       0.0               1      1

@@ -36,10 +36,10 @@ def ever(col: str, *, include_current: bool = True, name: str | None = None) -> 
     never missing (False until a known event).  Past-only.  Output bool.  Default name:
     ``<col>_ever``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "wk": [1, 2, 3, 1, 2],
     ...                    "smoked": [False, True, False, False, False]})
-    >>> px.derive(df, px.ever("smoked"), id="pid", time="wk")
+    >>> pfx.derive(df, pfx.ever("smoked"), id="pid", time="wk")
        pid  wk  smoked  smoked_ever
     0    1   1   False        False
     1    1   2    True         True

@@ -34,10 +34,10 @@ def gap(*, name: str | None = None) -> Gap:
     (default days) for datetimes.  Missing on the subject's first occasion.  Past-only.
     Default name: ``gap``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2],
     ...                    "visit": pd.to_datetime(["2024-01-01", "2024-01-15", "2024-03-01", "2024-02-01"])})
-    >>> px.derive(df, px.gap(), id="pid", time="visit")
+    >>> pfx.derive(df, pfx.gap(), id="pid", time="visit")
        pid      visit   gap
     0    1 2024-01-01   NaN
     1    1 2024-01-15  14.0

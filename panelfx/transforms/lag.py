@@ -117,10 +117,10 @@ def lag(
     ``periods`` and for ``offset``.  Default name: ``<col>_lag<k>`` or ``<col>_lead<k>``;
     ``<col>_lag_<offset>`` by time (``hb_lag_30D``, ``hb_lag_7``).
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": ["a", "a", "a", "b"], "wk": [1, 2, 3, 1],
     ...                    "dose": [10, 20, 20, 5]})
-    >>> px.derive(df, px.lag("dose"), px.lag("dose", -1), id="pid", time="wk")
+    >>> pfx.derive(df, pfx.lag("dose"), pfx.lag("dose", -1), id="pid", time="wk")
       pid  wk  dose  dose_lag1  dose_lead1
     0   a   1    10        NaN        20.0
     1   a   2    20       10.0        20.0
@@ -130,7 +130,7 @@ def lag(
     By time: the dose as of one week earlier, from a source at most 3 days older than that.
 
     >>> df = pd.DataFrame({"pid": ["a"] * 5, "day": [0, 5, 8, 16, 30], "dose": [10, 20, 30, 40, 50]})
-    >>> px.derive(df, px.lag("dose", offset=7), px.lag("dose", offset=7, tolerance=3, name="dose_wk"),
+    >>> pfx.derive(df, pfx.lag("dose", offset=7), pfx.lag("dose", offset=7, tolerance=3, name="dose_wk"),
     ...           id="pid", time="day")
       pid  day  dose  dose_lag_7  dose_wk
     0   a    0    10         NaN      NaN

@@ -33,9 +33,9 @@ def occasion(*, name: str | None = None) -> Occasion:
     (the time column is never missing).  Past-only.  Output int64.  Default name:
     ``occasion``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [2, 1, 1, 1], "day": [0, 40, 0, 15]})
-    >>> px.derive(df, px.occasion(), id="pid", time="day")
+    >>> pfx.derive(df, pfx.occasion(), id="pid", time="day")
        pid  day  occasion
     0    2    0         1
     1    1   40         3

@@ -191,11 +191,11 @@ def rolling(
     Cost: O(n) for count, sum, mean, var and std (prefix sums), O(n log w) for min and
     max, O(n w log w) for the median over windows of w rows.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 30, 60, 120, 0],
     ...                    "sbp": [150, 144, None, 138, 160]})
-    >>> px.derive(df, px.rolling("sbp", span=90), px.rolling("sbp", "max", occasions=2),
-    ...           px.rolling("sbp", "count", exclude_current=True), id="pid", time="day")
+    >>> pfx.derive(df, pfx.rolling("sbp", span=90), pfx.rolling("sbp", "max", occasions=2),
+    ...           pfx.rolling("sbp", "count", exclude_current=True), id="pid", time="day")
        pid  day    sbp  sbp_mean_90  sbp_max_2occ  sbp_count_sofar_prior
     0    1    0  150.0        150.0         150.0                      0
     1    1   30  144.0        147.0         150.0                      1

@@ -85,11 +85,11 @@ def time_since(
     subject's first (counted) event.  Past-only.  Default names: ``time_since_<col>``,
     ``time_since_first_<col>``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 3, 10, 12, 0],
     ...                    "fall": [False, True, False, True, True]})
-    >>> px.derive(df, px.time_since("fall"), px.time_since("fall", "first"),
-    ...           px.time_since("fall", include_current=False, name="since_prior"), id="pid", time="day")
+    >>> pfx.derive(df, pfx.time_since("fall"), pfx.time_since("fall", "first"),
+    ...           pfx.time_since("fall", include_current=False, name="since_prior"), id="pid", time="day")
        pid  day   fall  time_since_fall  time_since_first_fall  since_prior
     0    1    0  False              NaN                    NaN          NaN
     1    1    3   True              0.0                    0.0          NaN

@@ -34,10 +34,10 @@ def time_since_baseline(*, name: str | None = None) -> TimeSinceBaseline:
     column's units, or in the ``unit`` of :func:`~panelfx.derive` (default days) for
     datetimes.  Never missing.  Past-only.  Default name: ``time_since_baseline``.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2],
     ...                    "visit": pd.to_datetime(["2024-01-01", "2024-01-15", "2024-03-01", "2024-02-01"])})
-    >>> px.derive(df, px.time_since_baseline(), unit="W", id="pid", time="visit")
+    >>> pfx.derive(df, pfx.time_since_baseline(), unit="W", id="pid", time="visit")
        pid      visit  time_since_baseline
     0    1 2024-01-01             0.000000
     1    1 2024-01-15             2.000000

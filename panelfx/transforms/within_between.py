@@ -80,10 +80,10 @@ def within_between(col: str, level: str = "mean", *, names: Sequence[str] | None
     mean uses every occasion).  Output float64.  Default names: ``<col>_between``,
     ``<col>_within``; ``names=(between, within)`` sets both.
 
-    >>> import pandas as pd, panelfx as px
+    >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "wk": [0, 1, 2, 0, 1],
     ...                    "steps": [4.0, 6.0, None, 9.0, 7.0]})
-    >>> px.derive(df, px.within_between("steps"), id="pid", time="wk")
+    >>> pfx.derive(df, pfx.within_between("steps"), id="pid", time="wk")
        pid  wk  steps  steps_between  steps_within
     0    1   0    4.0            5.0          -1.0
     1    1   1    6.0            5.0           1.0

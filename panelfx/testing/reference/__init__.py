@@ -5,10 +5,10 @@ straight from each transform's documented definition, sharing no code with the
 vectorised kernels.  Use them in tests on small frames (hundreds of rows), never in
 production.
 
->>> import pandas as pd, panelfx as px
+>>> import pandas as pd, panelfx as pfx
 >>> from panelfx.testing import reference
 >>> df = pd.DataFrame({"pid": [1, 1, 2], "day": [5, 0, 0], "y": [3.0, 1.0, 7.0]})
->>> reference(df, px.change_from_baseline("y"), id="pid", time="day")
+>>> reference(df, pfx.change_from_baseline("y"), id="pid", time="day")
    pid  day    y  y_change
 0    1    5  3.0       2.0
 1    1    0  1.0       0.0
