@@ -20,6 +20,7 @@ from .derivation import Derivation, DerivationFileError
 from .derive import derive
 from .errors import (
     ColumnExistsError,
+    ConflictingTiesError,
     ColumnTypeError,
     DuplicateOccasionError,
     MissingColumnError,
@@ -30,6 +31,7 @@ from .errors import (
     PrecisionError,
     TimeTypeError,
 )
+from .collapse import collapse_ties
 from .summary import subject_summary
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
@@ -69,6 +71,7 @@ __all__ = [
     "gap",
     "rolling",
     "subject_summary",
+    "collapse_ties",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -78,6 +81,7 @@ __all__ = [
     "ColumnTypeError",
     "PrecisionError",
     "ColumnExistsError",
+    "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
     "DerivationFileError",

@@ -68,10 +68,11 @@ _EPS = np.finfo("float64").eps
 
 @dataclass(frozen=True)
 class Bounds:
-    """Window of every sorted row i: rows ``lo[i] .. i - end`` (none when ``length`` is 0).
+    """Window of every sorted row i: rows ``lo[i] .. hi[i] - 1`` (none when ``length`` is 0).
 
     ``end`` is 0 when the window ends at the current occasion and 1 when it ends just
-    before it; ``length = hi - lo`` with ``hi = i + 1 - end``.
+    before it, so that ``hi = i + 1 - end``; -1 when the ends are irregular (an open right
+    end that also leaves out tied rows at the current time).
     """
 
     lo: np.ndarray
@@ -98,8 +99,13 @@ def bounds(
     """
     s = p.subjects
     i = np.arange(p.n)
-    end = 1 if exclude_current or (span is not None and closed in ("left", "neither")) else 0
+    open_right = span is not None and closed in ("left", "neither")
+    end = 1 if exclude_current or open_right else 0
     hi = i + 1 - end
+    if open_right and p.has_ties:
+        # [t - s, t) leaves out every row at time t, tied rows earlier in the order too
+        hi = np.minimum(hi, p.first_at_or_after(p.axis.key))
+        end = -1
     if occasions is not None:
         lo = np.maximum(s.first, hi - occasions)
     elif span is not None:
@@ -197,9 +203,14 @@ def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 
 def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np.ndarray:
-    """Reduce each (short) window offset by offset: ``ufunc`` over v[i - end - d], d < length."""
+    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length."""
     n = v.size
     out = np.full(n, start, dtype=np.result_type(v.dtype, type(start)))
+    if b.end < 0:  # irregular ends: gather each offset
+        for d in range(b.width):
+            reach = b.length > d
+            ufunc(out, v[np.maximum(b.hi - 1 - d, 0)], out=out, where=reach)
+        return out
     for d in range(b.width):
         s = b.end + d
         if s >= n:

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import Take
-from ._panel import Panel
+from ._panel import Panel, as_id_list
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
@@ -27,7 +27,7 @@ def plan(
     made: dict[str, int] = {}
     for i, tr in enumerate(transforms):
         try:
-            _plan_one(i, tr, transforms, made, columns, {*id_cols, time})
+            _plan_one(i, tr, transforms, made, columns, set(id_cols), time)
         except PanelError as err:
             err.position = i  # type: ignore[attr-defined]
             raise
@@ -35,7 +35,7 @@ def plan(
 
 
 def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[str, int],
-              columns: Sequence[str] | None, keys: set[str]) -> None:
+              columns: Sequence[str] | None, ids: set[str], time: str) -> None:
     if not isinstance(tr, Transform):
         raise OptionError(
             f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
@@ -43,10 +43,10 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         )
     what = f"transform #{i + 1} ({tr.type_name})"
     for col in tr.inputs():
-        if col in keys:
-            raise OptionError(f"{what} uses the id or time column {col!r} as a value")
-        if col in made or (columns is not None and col in columns):
-            continue
+        if col in ids:
+            raise OptionError(f"{what} uses the id column {col!r} as a value")
+        if col == time or col in made or (columns is not None and col in columns):
+            continue  # the time column may be read as a value (the previous visit's date, say)
         later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
                  if isinstance(t, Transform) and col in t.outputs()]
         if later:
@@ -58,7 +58,7 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         if columns is not None:
             raise MissingColumnError(f"column {col!r} needed by {what} is not in the frame", column=col, count=1)
     for out in tr.outputs():
-        if out in keys:
+        if out in ids or out == time:
             source = "the id or time column"
         elif out in made:
             source = f"also made by transform #{made[out] + 1}"
@@ -77,6 +77,8 @@ def derive(
     id: str | Sequence[str],
     time: str,
     unit: str | None = None,
+    order: str | None = None,
+    time_unit: str | None = None,
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -87,8 +89,16 @@ def derive(
     re-sorted.  A transform may use a column made by an earlier one.
 
     ``id`` names the subject column, or several (e.g. ``["site", "subject"]``); ``time``
-    the occasion time, numbers or datetimes.  ``unit`` (datetime times only; default
-    ``"D"``, days) is the unit of derived durations, rates and areas.
+    the occasion time, numbers or datetimes (either may be an index level).  ``unit``
+    (default ``"D"``, days, for datetimes) is the unit of derived durations, rates and
+    areas; ``time_unit`` declares the unit of numeric times (``"D"`` for days since
+    randomisation), after which ``unit`` converts them too and spans such as ``"30D"`` fit.
+
+    Tied occasions: ``order`` names a column that orders rows sharing a subject and time (a
+    dose record before the sample taken at the same time, say).  Rows then count as
+    successive occasions in (time, order); a row never sees a tied row later in the order,
+    so past-only transforms stay past-only; the gap between tied rows is 0 and a rate over
+    it is missing.  (id, time, order) must be unique.  Physical row order never breaks a tie.
 
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
@@ -103,8 +113,11 @@ def derive(
     r2    1    7  12.0     12.5       -0.5
     r3    1    0  12.5      NaN        0.0
     """
-    panel = Panel(frame, id=id, time=time, unit=unit)
-    names = plan(list(frame.columns), transforms, panel.id_cols, panel.time_col)
+    if not isinstance(frame, pd.DataFrame):
+        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
+    # the transform list is checked before any O(n log n) work
+    names = plan(list(frame.columns), transforms, as_id_list(id), time)
+    panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
     new = compute_all(panel, transforms)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")

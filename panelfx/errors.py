@@ -21,6 +21,7 @@ __all__ = [
     "ColumnTypeError",
     "PrecisionError",
     "ColumnExistsError",
+    "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
 ]
@@ -78,6 +79,10 @@ class ColumnTypeError(PanelError, TypeError):
 
 class PrecisionError(ColumnTypeError):
     """Values a computation cannot hold exactly, e.g. integers beyond 2**53 read as float64."""
+
+
+class ConflictingTiesError(PanelError, ValueError):
+    """Rows sharing a subject and time disagree on a column that has no rule for combining them."""
 
 
 class ColumnExistsError(PanelError, ValueError):

@@ -71,7 +71,7 @@ def test_order_is_checked_up_front():
     ("transforms", "error", "match"),
     [
         ((pfx.lag("sbp"), pfx.lag("sbp")), pfx.ColumnExistsError, r"'sbp_lag1' of transform #2 .* also made by transform #1"),
-        ((pfx.lag("day"),), pfx.OptionError, r"uses the id or time column 'day'"),
+        ((pfx.lag("pid"),), pfx.OptionError, r"uses the id column 'pid'"),
         ((pfx.lag("sbp", name="pid"),), pfx.ColumnExistsError, r"'pid' .* is the id or time column"),
         (("lag",), pfx.OptionError, r"transform #1 is a str, not a panelfx transform"),
     ],
@@ -187,7 +187,7 @@ def test_dictionary_with_frame_and_units():
     assert set(weekly.dictionary()["time_unit"]) == {"W (weeks)"}
     # the rate really is per week: 142 - 151 over 14 days = -9 per 2 weeks
     assert weekly.apply(dated).loc["d", "sbp_rate"] == pytest.approx(-4.5)
-    with pytest.raises(pfx.OptionError, match="unit='W' applies to datetime"):
+    with pytest.raises(pfx.OptionError, match="unit='W' converts durations of datetime times"):
         weekly.apply(df)
 
 

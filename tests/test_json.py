@@ -320,7 +320,7 @@ MALFORMED = [
      "'sbp_lag1' of transform #3 \\(lag\\) is also made by transform #1"),
     ("uses a later column", _doc(_set(T0 + ["col"], "sbp_within")), "transforms[0]",
      "column 'sbp_within' needed by transform #1 \\(lag\\) is made by a later transform \\(#2, within_between\\)"),
-    ("uses the time column", _doc(_set(T0 + ["col"], "day")), "transforms[0]", "uses the id or time column 'day'"),
+    ("uses the id column", _doc(_set(T0 + ["col"], "pid")), "transforms[0]", "uses the id column 'pid'"),
 ]
 
 

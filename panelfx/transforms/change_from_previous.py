@@ -60,8 +60,10 @@ class ChangeFromPrevious(Transform):
         y = panel.columns.numeric(self.col)
         y_prev = K.take(y, prev)
         if self.kind == "rate":
+            elapsed = panel.elapsed_since(prev)
+            elapsed[elapsed == 0] = np.nan  # tied occasions: no time passed, no rate
             with np.errstate(divide="ignore", invalid="ignore"):
-                return [(y - y_prev) / panel.elapsed_since(prev)]
+                return [(y - y_prev) / elapsed]
         return [relative_change(y, y_prev, self.kind)]
 
 
