@@ -382,15 +382,15 @@ def panels(
         else:
             frame.insert(0, "t", pd.Series(dates.astype(object), index=frame.index, dtype=object))
     elif time_kind == "huge_int":
-        anchors = []
+        firsts: list[int] = []
         for span in spans.tolist():
             special = [2**60, -(2**60), 2**62, 2**53 - span // 2, int(_I64.max) - span, int(_I64.min)]
             if rng is None:
-                anchors.append(draw(st.one_of(st.sampled_from(special), st.integers(2**59, 2**61))))
+                firsts.append(draw(st.one_of(st.sampled_from(special), st.integers(2**59, 2**61))))
             else:
-                anchors.append(special[int(rng.integers(0, len(special)))] if rng.random() < 0.5
-                               else int(rng.integers(2**59, 2**61, endpoint=True)))
-        frame.insert(0, "t", np.repeat(np.array(anchors, dtype=np.int64), sizes) + rel)
+                firsts.append(special[int(rng.integers(0, len(special)))] if rng.random() < 0.5
+                              else int(rng.integers(2**59, 2**61, endpoint=True)))
+        frame.insert(0, "t", np.repeat(np.array(firsts, dtype=np.int64), sizes) + rel)
     elif time_kind == "decimal":
         denominator = draw(st.sampled_from([10, 100]))
         shift = draw(st.sampled_from([0, 10**9]))
