@@ -318,7 +318,7 @@ def test_id_parts_reach_their_edges():
         "an int64-limit id value": lambda c: any(
             p.dtype in ("int64", "Int64") and (p == I64_MIN).any() for p in parts(c)),
     }
-    seen = collect(panels(id_parts=(1, 5), id_kinds=ALL_ID_KINDS, subjects=(1, 30)), checks, n=200)
+    seen = collect(panels(id_parts=(1, 5), id_kinds=ALL_ID_KINDS, subjects=(1, 30)), checks, n=100)
     assert seen == set(checks), sorted(set(checks) - seen)
 
 
