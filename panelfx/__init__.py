@@ -16,12 +16,13 @@ from __future__ import annotations
 from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.pfx)
 from ._transform import Transform
 from .check import check
+from .collapse import collapse_ties
 from .derivation import Derivation, DerivationFileError
 from .derive import derive
 from .errors import (
     ColumnExistsError,
-    ConflictingTiesError,
     ColumnTypeError,
+    ConflictingTiesError,
     DuplicateOccasionError,
     MissingColumnError,
     NotConstantError,
@@ -31,7 +32,6 @@ from .errors import (
     PrecisionError,
     TimeTypeError,
 )
-from .collapse import collapse_ties
 from .summary import subject_summary
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward

@@ -139,7 +139,7 @@ def _check_agree(panel: Panel, values: pd.Series, group: np.ndarray, starts: np.
             column=col, count=len(where), ids=ids)
 
 
-def _check_rules(frame: pd.DataFrame, panel: Panel, rules: dict[str, str], order: str | None) -> None:
+def _check_rules(frame: pd.DataFrame, panel: Panel, rules: Mapping[str, str], order: str | None) -> None:
     keys = {*panel.id_cols, panel.time_col, *([order] if order else [])}
     for col, rule in rules.items():
         if col not in frame.columns:

@@ -140,18 +140,18 @@ def _build() -> dict[str, list[Entry]]:
     cat["events_so_far"] = [
         fixed(pfx.events_so_far("flag"), non_decreasing=(0,)),
         fixed(pfx.events_so_far("flag", include_current=False), non_decreasing=(0,)),
-        fixed(pfx.events_so_far("x"), non_decreasing=(0,)),
+        fixed(pfx.events_so_far("x", any_nonzero=True), non_decreasing=(0,)),
     ]
     cat["ever"] = [
         fixed(pfx.ever("flag"), non_decreasing=(0,)),
         fixed(pfx.ever("flag", include_current=False), non_decreasing=(0,)),
-        fixed(pfx.ever("y")),
+        fixed(pfx.ever("y", any_nonzero=True)),
     ]
     cat["time_since"] = [
         fixed(pfx.time_since("flag")),
         fixed(pfx.time_since("flag", "first"), non_decreasing=(0,)),
         fixed(pfx.time_since("flag", include_current=False)),
-        fixed(pfx.time_since("x", "first", include_current=False)),
+        fixed(pfx.time_since("x", "first", include_current=False, any_nonzero=True)),
     ]
     cat["gap"] = [fixed(pfx.gap())]
     cat["occasion"] = [fixed(pfx.occasion(), non_decreasing=(0,))]

@@ -8,7 +8,7 @@ from typing import Any
 
 import pandas as pd
 
-from . import Subject, is_missing
+from . import Subject, is_missing, short_decimals
 
 
 def subject_summary(
@@ -24,16 +24,17 @@ def subject_summary(
     cols = [cols] if isinstance(cols, str) else list(cols)
     is_dt = not pd.api.types.is_numeric_dtype(frame[time].dtype) or pd.api.types.is_bool_dtype(frame[time].dtype)
     unit = (unit or "D") if is_dt else None
+    decimal = is_dt or short_decimals(frame[time].tolist())
     groups: dict[Any, list[int]] = {}
     for i, k in enumerate(zip(*[frame[c].tolist() for c in id_cols])):
         groups.setdefault(k, []).append(i)
     records = []
     for key, positions in groups.items():
         rows = frame.iloc[positions]
-        probe = Subject(rows, [], unit)
+        probe = Subject(rows, [], unit, decimal)
         times = [probe.native(v) for v in rows[time].tolist()]
         order = sorted(range(len(positions)), key=lambda j: times[j])
-        s = Subject(rows.iloc[order], [times[j] for j in order], unit)
+        s = Subject(rows.iloc[order], [times[j] for j in order], unit, decimal)
         rec: dict[str, Any] = dict(zip(id_cols, key))
         rec["n_occasions"] = len(positions)
         rec["first_time"] = s.rows[time].iloc[0]
