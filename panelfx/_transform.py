@@ -54,6 +54,12 @@ class Transform:
         """One array per output, in the caller's row order."""
         raise NotImplementedError
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        """Per output, what its time unit means for the data dictionary: "duration", "rate" (per
+        unit of time), "area" (value x time) or None (no time unit: a value, a count, a time).
+        ``time`` is the panel's time column (a difference of it is a duration)."""
+        return (None,) * len(self.outputs())
+
     # -- shared helpers ------------------------------------------------------------
     def options(self) -> dict[str, Any]:
         """The fields as plain values (what a saved derivation stores)."""
@@ -104,3 +110,6 @@ class OccasionHelper(Transform):
     @property
     def past_only(self) -> bool:
         return True
+
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("duration",)  # gap and time since baseline; occasion overrides

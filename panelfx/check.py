@@ -36,6 +36,7 @@ def check(
     spacing: Any = None,
     tolerance: Any = None,
     notes: bool = False,
+    order: str | None = None,
 ) -> pd.DataFrame:
     """Report structural problems of a long-format panel; an empty frame when all is well.
 
@@ -55,6 +56,8 @@ def check(
       ``time`` is the planned time), ``extra`` for a second visit matched to the same
       scheduled occasion.  Scheduled occasions after a subject's last visit are not
       reported: the end of planned follow-up is not known here.
+    - ``order`` (a column that orders rows sharing a time, as in :func:`derive`): rows tied
+      in time but told apart by it are not duplicates;
     - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
       when rows are not grouped by subject in time order; harmless for panelfx).
 
@@ -85,7 +88,7 @@ def check(
 
     keep = ~(null_id | null_time)
     sub = frame if keep.all() else frame.loc[keep]
-    panel = Panel(sub, id=id_cols, time=time, strict=False)
+    panel = Panel(sub, id=id_cols, time=time, order=order, strict=False)
     positions = np.flatnonzero(keep)  # frame positions of sub's rows
 
     if notes and panel.ordering.order is not None:
@@ -115,8 +118,8 @@ def check(
     if not parts:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in REPORT_COLUMNS})
     report = pd.concat(parts, ignore_index=True)
-    order = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
-    report = report.assign(_o=order.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
+    rank = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
+    report = report.assign(_o=rank.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
     return report.reset_index(drop=True)[REPORT_COLUMNS]
 
 

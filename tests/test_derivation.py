@@ -169,7 +169,11 @@ def test_dictionary_without_frame():
     assert table["dtype"].isna().all()
     assert table["description"].iloc[0] == pfx.lag("sbp").describe()
     assert table["description"].iloc[3].endswith("[output 1 of 2]")
-    assert table["time_unit"].iloc[0] == "D (days) for datetime times, else the units of 'day'"
+    assert table["time_unit"].tolist() == [""] * 5  # carried values and means carry no time unit
+    timed = pfx.Derivation(pfx.gap(), pfx.change_from_previous("sbp", "rate"), pfx.cumulative("sbp", "step"),
+                           pfx.change_from_previous("day", name="day_step"), id="pid", time="day").dictionary()
+    unit = "D (days) for datetime times, else the units of 'day'"
+    assert timed["time_unit"].tolist() == [unit, f"per {unit}", f"sbp x {unit}", unit]
 
 
 def test_dictionary_with_frame_and_units():
@@ -179,12 +183,17 @@ def test_dictionary_with_frame_and_units():
     d = pfx.Derivation(pfx.change_from_previous("sbp", "rate"), pfx.lag("sbp"), id="pid", time="day")
     table = d.dictionary(df)
     assert table["dtype"].tolist() == ["float64", "float64"]
-    assert set(table["time_unit"]) == {"the units of 'day'"}
+    assert table["time_unit"].tolist() == ["per the units of 'day'", ""]
     dated = df.assign(day=pd.Timestamp("2024-01-01") + pd.to_timedelta(df["day"], unit="D"))
-    assert set(d.dictionary(dated)["time_unit"]) == {"D (days)"}
+    assert d.dictionary(dated)["time_unit"].tolist() == ["per D (days)", ""]
     weekly = pfx.Derivation(*d.transforms, id="pid", time="day", unit="W")
-    assert set(weekly.dictionary(dated)["time_unit"]) == {"W (weeks)"}
-    assert set(weekly.dictionary()["time_unit"]) == {"W (weeks)"}
+    assert weekly.dictionary(dated)["time_unit"].tolist() == ["per W (weeks)", ""]
+    assert weekly.dictionary()["time_unit"].tolist() == ["per W (weeks)", ""]
+    # numeric days declared with time_unit: the rate per week converts them
+    declared = pfx.Derivation(*d.transforms, id="pid", time="day", unit="W", time_unit="D")
+    assert declared.apply(df).loc["d", "sbp_rate"] == pytest.approx(-4.5)
+    assert declared.dictionary(df)["time_unit"].tolist() == ["per W (weeks)", ""]
+    assert pfx.Derivation.from_json(declared.to_json()) == declared
     # the rate really is per week: 142 - 151 over 14 days = -9 per 2 weeks
     assert weekly.apply(dated).loc["d", "sbp_rate"] == pytest.approx(-4.5)
     with pytest.raises(pfx.OptionError, match="unit='W' converts durations of datetime times"):

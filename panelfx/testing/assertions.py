@@ -98,8 +98,8 @@ def _fail(
     )
 
 
-def _panel(frame: pd.DataFrame, id: str | Sequence[str], time: str) -> Panel:
-    return Panel(frame, id=id, time=time)
+def _panel(frame: pd.DataFrame, id: str | Sequence[str], time: str, order: str | None = None) -> Panel:
+    return Panel(frame, id=id, time=time, order=order)
 
 
 # --------------------------------------------------------------------------- within subject
@@ -245,6 +245,8 @@ def assert_past_only(
     seed: int = 0,
     rtol: float = 1e-9,
     atol: float = 1e-12,
+    order: str | None = None,
+    time_unit: str | None = None,
 ) -> None:
     """Assert that the transforms' outputs do not use the future.
 
@@ -280,9 +282,10 @@ def assert_past_only(
                 f"transform #{i + 1} ({tr.type_name}) declares that it uses later occasions "
                 f"(past_only is False): {tr!r}"
             )
-    full = derive(frame, *transforms, id=id, time=time, unit=unit)
+    keys = {"id": id, "time": time, "unit": unit, "order": order, "time_unit": time_unit}
+    full = derive(frame, *transforms, **keys)
     outputs = [c for tr in transforms for c in tr.outputs()]
-    p = _panel(frame, id, time)
+    p = _panel(frame, id, time, order)
     pos = p.ordering.unsort(p.subjects.pos)
     if p.n == 0:
         return
@@ -297,7 +300,7 @@ def assert_past_only(
     for r in ranks:
         keep = pos <= r
         cut = frame.loc[keep] if frame.index.is_unique else frame.iloc[np.flatnonzero(keep)]
-        again = derive(cut, *transforms, id=id, time=time, unit=unit)
+        again = derive(cut, *transforms, **keys)
         kept = full.iloc[np.flatnonzero(keep)]
         for col in outputs:
             ok = _same(again[col].reset_index(drop=True), kept[col].reset_index(drop=True), rtol, atol)

@@ -49,6 +49,11 @@ class ChangeFromPrevious(Transform):
         prev = "the last earlier occasion with a value" if self.skip_missing else "the previous occasion"
         return f"{what} of {self.col!r}; previous = {prev}"
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        if self.kind == "rate":
+            return ("rate",)
+        return ("duration",) if self.col == time and self.kind == "difference" else (None,)
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         if self.skip_missing:

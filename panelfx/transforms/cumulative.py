@@ -64,6 +64,9 @@ class Cumulative(Transform):
             what += "; missing from the first missing contribution until the accumulation restarts"
         return what + where_words(self.where)
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("area",) if self.method in ("step", "trapezoid") else (None,)
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         y = panel.columns.numeric(self.col)

@@ -55,6 +55,9 @@ class TimeSince(Transform):
                 f"missing before any such event (a missing flag is not an event)"
                 + flag_words(self.any_nonzero, self.where))
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("duration",)
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         event = event_flags(panel, self.col, self.any_nonzero, self.where)  # a missing flag is no event
