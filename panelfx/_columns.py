@@ -77,16 +77,17 @@ class Columns:
         return self._cached(col, "numeric", lambda: self.ordering.sort(self._to_float(col)))
 
     def integers(self, col: str) -> np.ndarray | None:
-        """An integer column (numpy or nullable, no missing value) as int64 in sorted order;
-        ``None`` for any other column.  For exact arithmetic on integers beyond 2**53."""
+        """An integer column (numpy, nullable or Arrow; no missing value) in sorted order as int64,
+        or uint64 when its values pass the int64 range; ``None`` for any other column.  For exact
+        arithmetic on integers beyond 2**53."""
         def make() -> np.ndarray | None:
             s = self.series(col)
             if not pd.api.types.is_integer_dtype(s.dtype) or s.isna().any():
                 return None
-            v = s.to_numpy()
-            if v.dtype == np.uint64 and v.size and int(v.max()) > np.iinfo(np.int64).max:
-                return None
-            return self.ordering.sort(v.astype(np.int64, copy=False))
+            np_type = s.dtype if isinstance(s.dtype, np.dtype) else getattr(s.dtype, "numpy_dtype", None)
+            v = s.to_numpy(dtype=np_type)
+            wide = v.dtype.kind == "u" and v.size and int(v.max()) > np.iinfo(np.int64).max
+            return self.ordering.sort(v.astype(np.uint64 if wide else np.int64, copy=False))
         return self._cached(col, "integers", make)
 
     def flags(self, col: str, *, any_nonzero: bool = False) -> tuple[np.ndarray, np.ndarray]:

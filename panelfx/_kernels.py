@@ -90,7 +90,7 @@ def running_count(s: Subjects, mask: np.ndarray) -> np.ndarray:
 
 # ---------------------------------------------------------------------- running sums
 def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
-    """Running sum within subject: bit for bit v1, v1 + v2, (v1 + v2) + v3, ... in float64.
+    """Running sum within subject: bit for bit ``s = 0.0; s += v`` over the subject's rows in float64.
 
     Sequential addition in time order, exactly as a loop over one subject's rows would
     do it, so a subject's sums never depend on other subjects or on the row order.
@@ -107,6 +107,7 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
         out = _grid_cumsum(s, v)
     if s.n and not np.isfinite(out).all():
         _rescue_overflow(s, v, out)
+    out += 0.0  # a loop starts from +0.0: a sum of negative zeros is +0.0, as there
     return out
 
 
@@ -181,10 +182,11 @@ def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
     """The search key of rows whose time key (int64, sorting like the times) is ``tkey``."""
     forced = FORCED_SEARCH.get()
     if s.n and "rank" not in forced:
-        first = tkey[s.first]
-        rel = tkey - first  # within subject: no overflow, the time axis checks the range
-        width = int(rel.max()) + 2  # room for "after the subject's last time"
+        # offsets from the subject's first time, exact even past the int64 range (unsigned)
+        urel = tkey.view(np.uint64) - tkey[s.first].view(np.uint64)
+        width = int(urel.max()) + 2  # room for "after the subject's last time"
         if width.bit_length() + max(s.count, 1).bit_length() <= 62:
+            rel = urel.view(np.int64)
             rel += s.grp * width
             return SearchKey("offset", rel, width, None)
     distinct = np.unique(tkey)

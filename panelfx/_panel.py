@@ -219,7 +219,7 @@ class Panel:
     def elapsed_since(self, source: np.ndarray) -> np.ndarray:
         """Per row: the time since sorted row ``source`` as a float duration, NaN where -1."""
         t = self.axis.t
-        out = self.axis.duration(t - t[np.maximum(source, 0)])
+        out = self.axis.elapsed(t, t[np.maximum(source, 0)])
         out[source < 0] = np.nan
         return out
 

@@ -252,11 +252,9 @@ class TimeAxis:
         if kind == "datetime":
             t, res, tz = _datetimes(series, "time column")
             missing = t == NAT
-            _check_span_fits(t, missing, name)
         elif kind == "timedelta":
             t, res = _timedeltas(series)
             missing = t == NAT
-            _check_span_fits(t, missing, name)
         else:
             t, scale, missing = _numbers(series)
         return cls(kind=kind, column=name, unit=unit, res=res, scale=scale, tz=tz, t=t, time_unit=time_unit), missing
@@ -343,6 +341,20 @@ class TimeAxis:
                 raise OptionError(f"{what}={value!r} is not a time span such as '90D'") from None
         raise OptionError(f"{what}={value!r} does not fit time column {self.column!r}, which holds {self.kind} "
                           f"values: give a timedelta or a string such as '90D'")
+
+    def between(self, later: np.ndarray, earlier: np.ndarray) -> np.ndarray:
+        """``later - earlier`` in native units as float64, for ``later >= earlier`` (sorted rows):
+        exact integer arithmetic on integer axes even where the difference passes the int64 range
+        (taken modulo 2**64 as unsigned), then rounded once."""
+        if self.binary:
+            return later - earlier
+        return (later.view(np.uint64) - earlier.view(np.uint64)).astype(np.float64)
+
+    def elapsed(self, later: np.ndarray, earlier: np.ndarray) -> np.ndarray:
+        """Durations ``later - earlier`` (``later >= earlier``) in ``unit``: :meth:`between`, scaled."""
+        if self.binary:
+            return self.duration(later - earlier)
+        return self.duration(later.view(np.uint64) - earlier.view(np.uint64))
 
     def duration(self, delta: np.ndarray) -> np.ndarray:
         """Differences of native times as float64 durations: time-column units for numbers,
@@ -449,9 +461,7 @@ def _numbers(series: pd.Series) -> tuple[np.ndarray, int | None, np.ndarray]:
             raise TimeTypeError(rows_message("time beyond the int64 range", name, len(bad),
                                              list(series.index[bad[:5]]), noun="row labels"),
                                 column=name, count=len(bad))
-        t = raw.astype(np.int64)
-        _check_span_fits(t, missing, name)
-        return t, 1, missing
+        return raw.astype(np.int64), 1, missing
     x = series.to_numpy(dtype=np.float64, na_value=np.nan)
     missing = np.isnan(x)
     inf = np.isinf(x)
@@ -465,13 +475,6 @@ def _numbers(series: pd.Series) -> tuple[np.ndarray, int | None, np.ndarray]:
         return x, None, missing
     t = np.rint(np.where(missing, 0.0, x) * scale).astype(np.int64)
     return t, scale, missing
-
-
-def _check_span_fits(t: np.ndarray, missing: np.ndarray, name: str) -> None:
-    ok = t[~missing] if missing.any() else t
-    if ok.size and int(ok.max()) - int(ok.min()) > INT_MAX:
-        raise TimeTypeError(f"times in column {name!r} span more than 2**63 - 1: differences cannot be exact",
-                            column=name, count=len(t))
 
 
 def _check_unit(unit: str | None, kind: str, column: str, time_unit: str | None = None) -> str | None:

@@ -145,6 +145,25 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
         if over.size:  # an overflow on the way: add again, scaled
             out[over] = padded_apply(v0, b, over, _sum_of_rows)
         return out
+    out = _total_by_prefix(s, b, v0)
+    # Short windows are always added directly, whatever other rows' windows are, so that a
+    # row's sum never depends on the other subjects (the same path, to the last bit).
+    short = np.flatnonzero((b.length <= DIRECT_MAX) & (b.length > 0))
+    if short.size:
+        with np.errstate(over="ignore", invalid="ignore"):
+            acc = np.zeros(short.size)
+            hi, length = b.hi[short], b.length[short]
+            for d in range(DIRECT_MAX):
+                np.add(acc, v0[np.maximum(hi - 1 - d, 0)], out=acc, where=length > d)
+        out[short] = acc
+        over = short[~np.isfinite(acc)]
+        if over.size:
+            out[over] = padded_apply(v0, b, over, _sum_of_rows)
+    return out
+
+
+def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
+    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly."""
     prefix = K.cumsum(s, v0)
     top, bottom = _prefix_ends(s, b, prefix)
     # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
@@ -232,6 +251,12 @@ def variance(s: Subjects, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.n
         rows = np.flatnonzero(enough)
         out[rows] = padded_apply(y, b, rows, _two_pass_var)
         return out
+    # Short windows always take the two-pass route (see total): a row never depends on others.
+    short = enough & (b.length <= DIRECT_MAX)
+    enough = enough & ~short
+    rows = np.flatnonzero(short)
+    if rows.size:
+        out[rows] = padded_apply(y, b, rows, _two_pass_var)
     # Centre by the subject mean so that prefix sums of squares stay of the window's size.
     n_valid = s.reduce(np.add, valid.astype(np.float64))
     v0 = np.where(valid, y, 0.0)
@@ -248,7 +273,7 @@ def variance(s: Subjects, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.n
         # Rounding bound of num: of s2, and of s1 as it enters s1**2 / count (see _rounding).
         bound = 4 * (_rounding(s, b, None, ww) + _EPS * np.abs(s2)
                      + 2 * np.abs(s1) * _rounding(s, b, None, w) / safe_cnt)
-        out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), np.nan)
+        out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), out)
         # not finite: an overflow on the way (the two-pass sums below scale if they must)
         redo = np.flatnonzero(enough & ((bound > VAR_RTOL * num) | ~np.isfinite(num) | ~np.isfinite(bound)))
     if redo.size:

@@ -151,7 +151,7 @@ def _schedule(frame: pd.DataFrame, panel: Panel, positions: np.ndarray, id_cols:
     if panel.n == 0:
         return []
     t0 = panel.t[panel.subjects.first]
-    rel = (panel.t - t0).astype("float64")
+    rel = panel.axis.between(panel.t, t0)
     slot = np.rint(rel / step)
     dev = rel - slot * step
     parts = []

@@ -70,7 +70,7 @@ def subject_summary(
     out["first_time"] = frame[time].iloc[first_rows].reset_index(drop=True)
     out["last_time"] = frame[time].iloc[last_rows].reset_index(drop=True)
     t0 = panel.t[panel.starts]
-    out["follow_up"] = panel.duration(panel.t[ends - 1] - t0)
+    out["follow_up"] = panel.axis.elapsed(panel.t[ends - 1], t0)
     # Time from the subject's first occasion keeps the slope sums on small numbers.
     x_all = panel.elapsed_since(panel.subjects.first)
     for c in columns:

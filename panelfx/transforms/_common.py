@@ -107,8 +107,13 @@ def difference(panel: Panel, col: str, source: np.ndarray) -> np.ndarray:
         out = panel.elapsed_since(source)
         return out
     ints = panel.columns.integers(col)
-    if ints is not None and (ints.size == 0 or int(ints.max()) - int(ints.min()) <= np.iinfo(np.int64).max):
-        out = (ints - ints[np.maximum(source, 0)]).astype(np.float64)
+    if ints is not None:
+        a, b = ints, ints[np.maximum(source, 0)]
+        # |a - b| taken modulo 2**64 as unsigned is exact for any two 64-bit integers; then the sign
+        up = a >= b
+        mag = np.where(up, a.view(np.uint64) - b.view(np.uint64), b.view(np.uint64) - a.view(np.uint64))
+        out = mag.astype(np.float64)
+        np.negative(out, out=out, where=~up)
         out[source < 0] = np.nan
         return out
     y = panel.columns.numeric(col)

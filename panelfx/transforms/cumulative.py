@@ -83,7 +83,6 @@ class Cumulative(Transform):
         prev = K.shift_index(s, 1)
         has_prev = prev >= 0
         pi = np.maximum(prev, 0)
-        step = panel.t - panel.t[pi]  # native units; 0 on each subject's first row
         breaks = np.zeros(panel.n, dtype=bool)
         runs = s  # without restarts the runs are the subjects
         if self.restart_after is not None:
@@ -93,7 +92,7 @@ class Cumulative(Transform):
             runs = s.split(breaks)
         linked = has_prev & ~breaks  # the interval from the previous occasion counts
         miss = np.isnan(y)
-        dt = panel.duration(step)
+        dt = panel.axis.elapsed(panel.t, panel.t[pi])  # 0 on each subject's first row
         if self.method == "sum":
             bad = miss
             part = np.where(bad, 0.0, y)

@@ -119,6 +119,7 @@ class Rolling(Transform):
             return [cnt]
         out = self._statistic(panel.subjects, b, y, valid, cnt)
         out[cnt < self.min_valid] = np.nan
+        out += 0.0  # one zero: min/max of {0.0, -0.0} would otherwise depend on their order
         return [out]
 
     def _statistic(self, s: Subjects, b: W.Bounds, y: np.ndarray, valid: np.ndarray,
