@@ -282,7 +282,7 @@ def assert_past_only(
                 f"transform #{i + 1} ({tr.type_name}) declares that it uses later occasions "
                 f"(past_only is False): {tr!r}"
             )
-    keys = {"id": id, "time": time, "unit": unit, "order": order, "time_unit": time_unit}
+    keys: dict[str, Any] = {"id": id, "time": time, "unit": unit, "order": order, "time_unit": time_unit}
     full = derive(frame, *transforms, **keys)
     outputs = [c for tr in transforms for c in tr.outputs()]
     p = _panel(frame, id, time, order)
