@@ -149,8 +149,11 @@ def reference(
     id: str | Sequence[str],
     time: str,
     unit: str | None = None,
+    order: str | None = None,
 ) -> pd.DataFrame:
     """What :func:`panelfx.derive` should return, computed the slow, obvious way.
+
+    ``order`` orders rows sharing a time: each subject's rows are taken in (time, order).
 
     Outputs come back as float64 where every value is a number (or missing), else as
     object columns; compare with :func:`panelfx.testing.assert_matches_reference`.
@@ -174,11 +177,12 @@ def reference(
         for positions in groups.values():
             rows = work.iloc[positions]
             times = [Subject(rows, [], unit, decimal).native(v) for v in rows[time].tolist()]
-            order = sorted(range(len(positions)), key=lambda j: times[j])
-            subj = Subject(rows.iloc[order], [times[j] for j in order], unit, decimal)
+            seq = rows[order].tolist() if order is not None else [0] * len(positions)
+            by = sorted(range(len(positions)), key=lambda j: (times[j], seq[j]))
+            subj = Subject(rows.iloc[by], [times[j] for j in by], unit, decimal)
             results = fn(tr, subj)
             for out, res in zip(outs, results):
-                for j, v in zip(order, res):
+                for j, v in zip(by, res):
                     out[positions[j]] = v
         for name, values in zip(tr.outputs(), outs):
             cleaned = [math.nan if is_missing(v) else v for v in values]
