@@ -290,15 +290,18 @@ def _check(argv: list[str]) -> int:
                         help="planned interval between occasions: a number, or a span such as 30D for dates")
     parser.add_argument("--tolerance", type=_number_or_text, metavar="T",
                         help="allowed distance from the planned time (default a quarter of --spacing)")
+    parser.add_argument("--order", metavar="COL",
+                        help="column that orders rows sharing a subject and time (tied rows are then no duplicates)")
     parser.add_argument("--notes", action="store_true", help="also report single-occasion subjects and row order")
     parser.add_argument("--csv", action="store_true", help="print every finding as CSV instead of a table")
     _input_options(parser, quiet="no progress on stderr")
     args = parser.parse_args(argv)
     progress = Progress("check", args.quiet, summary=False)
-    frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys([*args.id, args.time])],
+    keys = [*args.id, args.time, *([args.order] if args.order else [])]
+    frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys(keys)],
                        text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress)
     report = check(frame, id=args.id if len(args.id) > 1 else args.id[0], time=args.time,
-                   spacing=args.spacing, tolerance=args.tolerance, notes=args.notes)
+                   spacing=args.spacing, tolerance=args.tolerance, notes=args.notes, order=args.order)
     fatal = int((report["severity"] == "fatal").sum())
     if args.csv:
         report.to_csv(sys.stdout, index=False)
