@@ -119,33 +119,30 @@ def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
     if int(lengths.max()) == 1:
         out[:] = v
         return out
-    # Length class of each subject: ceil(log2(length)); one matrix per class.
-    cls = np.frexp(np.maximum(lengths - 1, 0))[1].astype(np.int8)
-    n_cls = int(cls.max()) + 1
-    by_subject = np.argsort(cls, kind="stable")
-    sub_counts = np.bincount(cls, minlength=n_cls)
-    column = np.empty(len(lengths), dtype=np.int64)
-    column[by_subject] = np.arange(len(lengths)) - np.repeat(np.cumsum(sub_counts) - sub_counts, sub_counts)
-    row_cls = cls[s.grp]
-    by_row = np.argsort(row_cls, kind="stable")
-    row_counts = np.bincount(row_cls, minlength=n_cls)
-    pos = s.pos
+    # One flat buffer holding a matrix per length class (subjects of 2**(k-1) < length <= 2**k),
+    # a subject per matrix row, so a subject's rows are contiguous there; padding at most doubles
+    # the cells.  Each matrix is summed along its rows: sequential, per subject.
+    cls = np.frexp(np.maximum(lengths - 1, 0))[1]
+    width = np.left_shift(1, cls)
+    counts = np.bincount(cls)
+    region = np.cumsum(counts * (1 << np.arange(len(counts))))  # end of each class's matrix
+    base = np.empty(len(lengths), dtype=np.int64)
+    for k in np.flatnonzero(counts):
+        members = np.flatnonzero(cls == k)  # subject order within the class
+        base[members] = region[k] - counts[k] * (1 << k) + np.arange(len(members)) * (1 << k)
+    index = base[s.grp]
+    index += s.pos
+    flat = np.zeros(int(region[-1]))
+    flat[index] = v
     at = 0
-    for k in range(n_cls):
-        if row_counts[k] == 0:
-            continue
-        rows = by_row[at: at + row_counts[k]]
-        at += row_counts[k]
-        if k == 0:  # subjects of one row
-            out[rows] = v[rows]
-            continue
-        p = pos[rows]
-        c = column[s.grp[rows]]
-        grid = np.zeros((int(p.max()) + 1, int(sub_counts[k])))
-        grid[p, c] = v[rows]
-        np.cumsum(grid, axis=0, out=grid)
-        out[rows] = grid[p, c]
-    return out
+    for k in range(len(counts)):
+        cells = int(counts[k]) << k
+        if counts[k] and k:
+            block = flat[at: at + cells].reshape(int(counts[k]), 1 << k)
+            np.cumsum(block, axis=1, out=block)
+        at += cells
+    del width
+    return flat[index]
 
 
 def _rescue_overflow(s: Subjects, v: np.ndarray, out: np.ndarray) -> None:
@@ -176,6 +173,7 @@ class SearchKey:
     key: np.ndarray
     width: int
     distinct: np.ndarray | None  # rank mode: the distinct time keys, sorted
+    first: np.ndarray | None = None  # offset mode: each subject's first time key
 
 
 def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
@@ -188,7 +186,7 @@ def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
         if width.bit_length() + max(s.count, 1).bit_length() <= 62:
             rel = urel.view(np.int64)
             rel += s.grp * width
-            return SearchKey("offset", rel, width, None)
+            return SearchKey("offset", rel, width, None, tkey[s.starts])
     distinct = np.unique(tkey)
     width = len(distinct) + 1
     key = np.searchsorted(distinct, tkey).astype(np.int64)
@@ -205,12 +203,13 @@ def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarra
     if len(q) == 0:
         return np.zeros(0, dtype=np.int64)
     if sk.mode == "offset":
-        first = tkey[s.starts[g]]
-        last = tkey[s.ends[g] - 1]
-        over = q > last
+        assert sk.first is not None
+        first = sk.first[g]
+        # q below the subject's first time: its first row; beyond first + width - 1: past its last
+        # row, the subject's end (its keys stay below first + width - 1)
         rel = np.maximum(q, first)
         rel -= first
-        rel[over] = sk.width - 1
+        np.minimum(rel.view(np.uint64), sk.width - 1, out=rel.view(np.uint64))  # q - first may pass int64
     else:
         assert sk.distinct is not None
         rel = np.searchsorted(sk.distinct, q, side="left").astype(np.int64)
