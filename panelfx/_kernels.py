@@ -123,13 +123,12 @@ def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
     # a subject per matrix row, so a subject's rows are contiguous there; padding at most doubles
     # the cells.  Each matrix is summed along its rows: sequential, per subject.
     cls = np.frexp(np.maximum(lengths - 1, 0))[1]
-    width = np.left_shift(1, cls)
     counts = np.bincount(cls)
     region = np.cumsum(counts * (1 << np.arange(len(counts))))  # end of each class's matrix
     base = np.empty(len(lengths), dtype=np.int64)
-    for k in np.flatnonzero(counts):
-        members = np.flatnonzero(cls == k)  # subject order within the class
-        base[members] = region[k] - counts[k] * (1 << k) + np.arange(len(members)) * (1 << k)
+    for c in np.flatnonzero(counts).tolist():
+        members = np.flatnonzero(cls == c)  # subject order within the class
+        base[members] = region[c] - counts[c] * (1 << c) + np.arange(len(members)) * (1 << c)
     index = base[s.grp]
     index += s.pos
     flat = np.zeros(int(region[-1]))
@@ -141,7 +140,6 @@ def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
             block = flat[at: at + cells].reshape(int(counts[k]), 1 << k)
             np.cumsum(block, axis=1, out=block)
         at += cells
-    del width
     return flat[index]
 
 
