@@ -23,6 +23,7 @@ from .errors import (
     ColumnTypeError,
     DuplicateOccasionError,
     MissingColumnError,
+    NestingError,
     NotConstantError,
     NullKeyError,
     OptionError,
@@ -45,6 +46,7 @@ from .transforms.rolling import rolling
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
+from .variance import design_effect, variance_components
 
 __version__ = "0.1.0"
 
@@ -69,6 +71,8 @@ __all__ = [
     "gap",
     "rolling",
     "subject_summary",
+    "variance_components",
+    "design_effect",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -80,5 +84,6 @@ __all__ = [
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",
+    "NestingError",
     "DerivationFileError",
 ]
