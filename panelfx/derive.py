@@ -43,7 +43,7 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         )
     what = f"transform #{i + 1} ({tr.type_name})"
     for col in tr.inputs():
-        if col in keys:
+        if col in keys and col not in tr.groupings():
             raise OptionError(f"{what} uses the id or time column {col!r} as a value")
         if col in made or (columns is not None and col in columns):
             continue
