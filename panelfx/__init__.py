@@ -31,6 +31,7 @@ from .errors import (
     PrecisionError,
     TimeTypeError,
 )
+from .grid import grid
 from .summary import subject_summary
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
@@ -73,6 +74,7 @@ __all__ = [
     "subject_summary",
     "variance_components",
     "design_effect",
+    "grid",
     # errors
     "PanelError",
     "MissingColumnError",
