@@ -168,10 +168,13 @@ def _grid_times(panel: Panel, at: Any, every: Any, start: Any, within: Any
             g = np.array([float(b + i * s) for i in range(k)], dtype=np.float64)
             extra = ()
         scale2 = decimal_scale(np.concatenate([rows, g]), extra=(*extra, *(() if span is None else (span,))))
+        rows_t: np.ndarray
+        points: np.ndarray
+        limit: Any
         if scale2 is not None:
             rows_t = np.rint(rows * scale2).astype(np.int64)
             points = np.rint(g * scale2).astype(np.int64)
-            limit: Any = None if span is None else int(np.rint(span * scale2))
+            limit = None if span is None else int(np.rint(span * scale2))
         else:
             rows_t, points, limit = rows, g, span
         shown_vals: Any = g
@@ -184,7 +187,7 @@ def _grid_times(panel: Panel, at: Any, every: Any, start: Any, within: Any
     rows_t = axis.t
     lim = None
     if within is not None:
-        w = axis.span(within, "within")
+        w: Any = axis.span(within, "within")
         if w < 0:
             raise OptionError(f"within must be 0 or more, got {within!r}")
         lim = math.floor(w)
@@ -194,8 +197,8 @@ def _grid_times(panel: Panel, at: Any, every: Any, start: Any, within: Any
             raise OptionError(f"at holds a missing time: {list(at)!r}")
         points = np.asarray(ticks, dtype=np.int64)
     else:
-        step = axis.span(every, "every")
-        if step <= 0:
+        tick_step: Any = axis.span(every, "every")
+        if tick_step <= 0:
             raise OptionError(f"every must be a positive span, got {every!r}")
         if start is not None:
             ticks, missing = axis.reference(pd.Series([start], name="start"))
@@ -205,10 +208,10 @@ def _grid_times(panel: Panel, at: Any, every: Any, start: Any, within: Any
         else:
             begin = int(rows_t.min()) if len(rows_t) else 0
         last = int(rows_t.max()) if len(rows_t) else begin
-        k = math.floor(Fraction(last - begin) / Fraction(step)) + 1 if last >= begin else 0
+        k = math.floor(Fraction(last - begin) / Fraction(tick_step)) + 1 if last >= begin else 0
         if k > MAX_POINTS:
             raise OptionError(f"every={every!r} makes {k} grid times (at most {MAX_POINTS})")
-        points = np.array([begin + math.floor(i * Fraction(step)) for i in range(k)], dtype=np.int64)
+        points = np.array([begin + math.floor(i * Fraction(tick_step)) for i in range(k)], dtype=np.int64)
     shown = axis.to_time(points)
     order = _ascending(points, shown.to_numpy())
     return rows_t, points[order], lim, shown.iloc[order].reset_index(drop=True)

@@ -314,7 +314,6 @@ def profiles(
     import matplotlib.pyplot as plt
 
     panel = Panel(frame, id=id, time=time)
-    ids = panel.id_cols
     if at is None and every is None:
         at = _even_times(panel)
     long = grid(frame, col, id=id, time=time, at=at, every=every)
@@ -405,8 +404,9 @@ def within_between(
 
     Only rows with both values count.  When the two differ, the association across people
     is not what changes within a person.  ``subjects`` (as in :func:`trajectories`, default
-    all) limits the points and lines drawn to a seeded sample; the slopes use every subject.  Points carry gid ``"points"``, subject lines
-    ``"subjects"``, the slopes ``"pooled"`` and ``"within"`` (their labels give the values).
+    all) limits the points and lines drawn to a seeded sample; the slopes use every subject.
+    Points carry gid ``"points"``, subject lines ``"subjects"``, the slopes ``"pooled"`` and
+    ``"within"`` (their labels give the values).
 
     >>> import matplotlib; matplotlib.use("Agg")
     >>> import matplotlib.pyplot as plt, pandas as pd

@@ -57,7 +57,8 @@ class WithinBetween(Transform):
             if isinstance(names, (str, bytes)) or not isinstance(names, (list, tuple)) or len(names) != len(defaults) \
                     or not all(isinstance(n, str) and n for n in names) or len(set(names)) != len(names):
                 what = "(between, within)" if not levels else f"({', '.join(levels)}, between, within)"
-                raise OptionError(f"names must be {len(defaults)} different column names {what}, got {names!r}")
+                count = "two" if len(defaults) == 2 else str(len(defaults))
+                raise OptionError(f"names must be {count} different column names {what}, got {names!r}")
             object.__setattr__(self, "names", tuple(names))  # a saved derivation may hand back a list
         elif len(set(defaults)) != len(defaults):
             raise OptionError(f"the default output names {list(defaults)} repeat a name: set names=")
