@@ -25,6 +25,7 @@ from .errors import (
     ConflictingTiesError,
     DuplicateOccasionError,
     MissingColumnError,
+    NestingError,
     NotConstantError,
     NullKeyError,
     OptionError,
@@ -32,6 +33,7 @@ from .errors import (
     PrecisionError,
     TimeTypeError,
 )
+from .grid import grid
 from .summary import subject_summary
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
@@ -47,6 +49,7 @@ from .transforms.rolling import rolling
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
+from .variance import design_effect, variance_components
 
 __version__ = "0.1.0"
 
@@ -72,6 +75,9 @@ __all__ = [
     "rolling",
     "subject_summary",
     "collapse_ties",
+    "variance_components",
+    "design_effect",
+    "grid",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -84,5 +90,6 @@ __all__ = [
     "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
+    "NestingError",
     "DerivationFileError",
 ]

@@ -41,6 +41,11 @@ class Transform:
         """Names of the columns it adds, in order."""
         raise NotImplementedError
 
+    def groupings(self) -> tuple[str, ...]:
+        """Those of :meth:`inputs` read as groupings (levels such as a clinic), which may
+        be id columns; none by default."""
+        return ()
+
     @property
     def past_only(self) -> bool:
         """True when each row's value uses only that occasion and earlier ones."""

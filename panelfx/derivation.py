@@ -351,7 +351,9 @@ class Derivation:
         try:
             doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
         except json.JSONDecodeError as err:
-            hint = " (the file looks truncated)" if err.pos >= len(text.rstrip()) else ""
+            # a string still open at the end of the text is reported where it starts
+            cut = err.pos >= len(text.rstrip()) or err.msg.startswith("Unterminated string")
+            hint = " (the file looks truncated)" if cut else ""
             raise DerivationFileError(
                 f"not valid JSON: {err.msg} at line {err.lineno}, column {err.colno}{hint}") from None
         return cls.from_dict(doc)

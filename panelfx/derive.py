@@ -43,9 +43,9 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         )
     what = f"transform #{i + 1} ({tr.type_name})"
     for col in tr.inputs():
-        if col in ids:
+        if col in ids and col not in tr.groupings():
             raise OptionError(f"{what} uses the id column {col!r} as a value")
-        if col == time or col in made or (columns is not None and col in columns):
+        if col == time or col in made or (columns is not None and col in columns) or col in tr.groupings():
             continue  # the time column may be read as a value (the previous visit's date, say)
         later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
                  if isinstance(t, Transform) and col in t.outputs()]

@@ -24,6 +24,7 @@ __all__ = [
     "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
+    "NestingError",
 ]
 
 #: How many offending ids an error message shows.
@@ -95,6 +96,10 @@ class NotConstantError(PanelError, ValueError):
 
 class OptionError(PanelError, ValueError):
     """A transform or function option has a value outside its rules."""
+
+
+class NestingError(PanelError, ValueError):
+    """Nested levels that do not nest: a unit (a clinic, a subject) seen under two parents."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

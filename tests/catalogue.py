@@ -38,6 +38,14 @@ def add_reference_time(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
     return frame.assign(ref_t=first + step)
 
 
+def add_levels(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
+    """Columns ``region`` (text) and ``clinic`` (int), constant within subject, nesting the
+    subjects: clinic numbers restart in each region."""
+    sub = frame.groupby(case.id, sort=False, observed=True).ngroup().to_numpy()
+    return frame.assign(region=pd.Series(sub % 2, index=frame.index).map({0: "North", 1: "South"}),
+                        clinic=(sub // 2) % 2)
+
+
 def numeric_time(case: PanelCase) -> bool:
     t = case.frame[case.time]
     return pd.api.types.is_numeric_dtype(t.dtype) and not pd.api.types.is_bool_dtype(t.dtype)
@@ -160,6 +168,11 @@ def _build() -> dict[str, list[Entry]]:
         fixed(pfx.within_between("y"), constant=(0,)),
         fixed(pfx.within_between("y", "baseline"), constant=(0,)),
         fixed(pfx.within_between("x"), constant=(0,)),
+        fixed(pfx.within_between("y", levels=["region"]), prepare=add_levels, constant=(0, 1)),
+        fixed(pfx.within_between("y", levels=["region", "clinic"], fit="flag"), prepare=add_levels,
+              constant=(0, 1, 2)),
+        fixed(pfx.within_between("x", fit="flag"), constant=(0,)),
+        fixed(pfx.within_between("y", levels=["clinic"], codes="unique"), prepare=add_levels, constant=(0, 1)),
     ]
     cat["rolling"] = [
         fixed(pfx.rolling("y", occasions=3)),

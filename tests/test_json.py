@@ -309,7 +309,7 @@ MALFORMED = [
     ("bad choice", _doc(_set(T1 + ["level"], "median")), "transforms[1].options.level",
      "level must be one of \\['mean', 'baseline'\\], got 'median'"),
     ("names of wrong length", _doc(_set(T1 + ["names"], ["a", "b", "c"])), "transforms[1].options.names",
-     "must be a list of 2"),
+     "names must be two different column names"),
     ("names not a list", _doc(_set(T1 + ["names"], "ab")), "transforms[1].options.names", "got a string"),
     ("bool for a number", _doc(_set(T2 + ["reference"], False)), "transforms[2].options.reference",
      "must be a string or a number or null, got true/false"),
