@@ -45,6 +45,13 @@ from .transforms.rolling import rolling
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
+from .transforms.study_day import study_day
+from .transforms.analysis_visit import analysis_visit
+from .transforms.visit_pick import visit_pick
+from .transforms.carry_baseline import carry_baseline
+from .transforms.carry_worst import carry_worst
+from .visit_windows import Windows, windows
+from .visit_grid import visit_grid
 
 __version__ = "0.1.0"
 
@@ -69,6 +76,15 @@ __all__ = [
     "gap",
     "rolling",
     "subject_summary",
+    # planned visits
+    "study_day",
+    "windows",
+    "Windows",
+    "analysis_visit",
+    "visit_pick",
+    "visit_grid",
+    "carry_baseline",
+    "carry_worst",
     # errors
     "PanelError",
     "MissingColumnError",
