@@ -63,7 +63,7 @@ class StudyDay(Transform):
                                 column=self.reference)
         d, d_missing = panel.sort(d), panel.sort(d_missing)
         r, r_missing = panel.sort(r), panel.sort(r_missing)
-        r, r_missing = V.subject_reference(r, r_missing, panel.subjects, self.reference, panel.ids_at)
+        V.subject_reference(r, r_missing, panel.subjects, self.reference, panel.ids_at)  # constant, or an error
         missing = d_missing | r_missing
         if kind == "number":
             if self.convention == "no_day_0":
@@ -110,9 +110,8 @@ def study_day(
     ``date`` names another column of dates to count instead of the time column (the date of
     an adverse event, say).
 
-    Missing values: missing where the date is missing and on every row of a subject without
-    a reference.  The reference is the subject's: its non-missing values must agree (a
-    :class:`~panelfx.NotConstantError` otherwise), and rows where it is missing use it.  Past-only.  Output int64
+    Missing values: missing where the date or the reference is missing.  The non-missing
+    references of a subject must agree (a :class:`~panelfx.NotConstantError` otherwise).  Past-only.  Output int64
     (float64 where a day is missing, or for fractional numbers).  Default name:
     ``study_day`` (``<date>_study_day`` with ``date``).
 

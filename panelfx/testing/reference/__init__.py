@@ -62,6 +62,7 @@ class Subject:
     rows: pd.DataFrame  # the subject's rows, sorted by time
     times: list[float]  # numbers, or nanoseconds for datetimes / timedeltas
     unit: str | None  # unit of durations for datetime times; None for numeric times
+    time: str = ""  # the time column's name (its values: ``raw(time)``)
 
     def raw(self, col: str) -> list[Any]:
         """Values as Python objects, None where missing."""
@@ -143,7 +144,7 @@ def reference(
             rows = work.iloc[positions]
             times = [Subject(rows, [], unit).native(v) for v in rows[time].tolist()]
             order = sorted(range(len(positions)), key=lambda j: times[j])
-            subj = Subject(rows.iloc[order], [times[j] for j in order], unit)
+            subj = Subject(rows.iloc[order], [times[j] for j in order], unit, time)
             results = fn(tr, subj)
             for out, res in zip(outs, results):
                 for j, v in zip(order, res):
