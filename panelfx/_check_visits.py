@@ -9,7 +9,8 @@ Two ways to state the plan, one matching rule (that of :func:`panelfx.analysis_v
 - ``windows`` in study days: every occasion goes to the window that holds its day; one
   outside every window is ``early`` / ``late`` against the nearest target.
 
-In both, the first occasion of a planned visit is the visit and later ones are ``extra``,
+In both, the occasion of a planned visit nearest its planned time is the visit (the
+earlier on a tie) and the others are ``extra``,
 and a planned visit up to the subject's last one with no occasion is ``missed``.  Each
 actual occasion is reported at most once (duplicates are reported as such by ``check``).
 """
@@ -84,10 +85,10 @@ def planned_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, spacing
         lo = np.array([_clamp(math.ceil(Fraction(a) - Fraction(b))) for a, b in zip(planned, tols)], dtype=np.int64)
         hi = np.array([_clamp(math.floor(Fraction(a) + Fraction(b))) for a, b in zip(planned, tols)], dtype=np.int64)
     slot = slot.astype(np.int64)
-    extra = _later_in_slot(s, slot, panel.repeated)
-    plain = ~extra & ~panel.repeated
     pf = np.array([float(x) for x in planned])
     dev = rel.astype(np.float64) - pf[slot]
+    extra = _later_in_slot(s, slot, panel.repeated, np.abs(dev))
+    plain = ~extra & ~panel.repeated
     tol_words = [repr(float(panel.duration(np.array([float(x)]))[0])) for x in tols]
     parts = []
     for problem, mask, text in (("early", plain & (rel < lo[slot]), " before"),
@@ -100,7 +101,8 @@ def planned_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, spacing
             parts.append(rows(positions[panel.original_positions(where)], problem, detail))
     where = np.flatnonzero(extra)
     if len(where):
-        detail = "second visit matched to scheduled occasion " + pd.Series(slot[where]).astype(str)
+        detail = ("second visit matched to scheduled occasion " + pd.Series(slot[where]).astype(str)
+                  + " (another is nearer the planned time)")
         parts.append(rows(positions[panel.original_positions(where)], "extra", detail))
     # missed: planned occasions 0 .. the subject's last occasion's, with no occasion
     last = np.maximum.reduceat(slot, s.starts)
@@ -149,9 +151,10 @@ def window_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, windows:
                 dist = pd.Series(np.abs(signed[mask])).map(_fmt)
                 detail = dist + text + where_text(near[mask]) + "; outside every window"
                 parts.append(rows(positions[panel.original_positions(outside[mask])], problem, detail.to_numpy()))
-    extra = np.flatnonzero(_later_in_slot(s, k, panel.repeated) & (k >= 0) & live)
+    dist = np.nan_to_num(V.distance(d, k, w), nan=np.inf)
+    extra = np.flatnonzero(_later_in_slot(s, k, panel.repeated, dist) & (k >= 0) & live)
     if len(extra):
-        detail = "second record in the window of " + where_text(k[extra])
+        detail = "second record in the window of " + where_text(k[extra]) + " (another is nearer the target)"
         parts.append(rows(positions[panel.original_positions(extra)], "extra", detail.to_numpy()))
     no_day = np.flatnonzero(live & ~present)
     if len(no_day):
@@ -185,14 +188,15 @@ def _relative(panel: Panel) -> np.ndarray:
     return t - t[panel.subjects.first]
 
 
-def _later_in_slot(s: Any, slot: np.ndarray, repeated: np.ndarray) -> np.ndarray:
-    """Rows (time order) that are not the first of their subject in their slot; duplicates of
-    the row before are left to the duplicate finding."""
+def _later_in_slot(s: Any, slot: np.ndarray, repeated: np.ndarray, dist: np.ndarray) -> np.ndarray:
+    """Rows that are not their subject's visit of their slot: the visit is the row nearest the
+    planned time (``dist``), the earlier on a tie.  Duplicates of the row before are left to
+    the duplicate finding."""
     n = s.n
     if n == 0:
         return np.zeros(0, dtype=bool)
     rows = np.arange(n)
-    order = np.lexsort((rows, slot, s.grp))
+    order = np.lexsort((rows, dist, slot, s.grp))
     g, k = s.grp[order], slot[order]
     head = np.ones(n, dtype=bool)
     head[1:] = (g[1:] != g[:-1]) | (k[1:] != k[:-1])

@@ -59,9 +59,10 @@ def check(
       ``missed`` for each scheduled occasion between two visits that has no visit (its
       ``time`` is the planned time), ``extra`` for a second visit matched to the same
       scheduled occasion.  Scheduled occasions after a subject's last visit are not
-      reported: the end of planned follow-up is not known here.  A visit is reported at
-      most once: a second visit matched to an occasion is ``extra`` (not also early/late).
-      Each occasion goes to the nearest scheduled one, the earlier on a tie.
+      reported: the end of planned follow-up is not known here.  Each occasion goes to
+      the nearest scheduled one (the earlier on a tie); of several matched to one, the
+      nearest is the visit and the others are ``extra`` (never also early or late), so a
+      visit is reported at most once.
     - with ``schedule`` (planned times that need not be evenly spaced, counted from each
       subject's first occasion, e.g. ``[0, 182, 365, 730]`` days or ``["0D", "182D", ...]``
       for datetimes) and ``tolerance`` (one value, or one per planned time): the same
@@ -70,7 +71,7 @@ def check(
       or from the time column when it holds numbers): each occasion goes to the window
       that holds its day, exactly as :func:`panelfx.analysis_visit` assigns it; ``early``
       / ``late`` for one outside every window (against the nearest target), ``extra`` for
-      a later one in the same window, ``missed`` for a window that starts on or before the
+      one that shares a window with an occasion nearer the target, ``missed`` for a window that starts on or before the
       subject's last day (always the first window) with no occasion (``time`` is the target
       when the time column holds the study days), ``no_day`` where the day is missing.
     - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
