@@ -124,7 +124,9 @@ def planned_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, spacing
 
 def window_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, windows: Any,
                     day: str | None) -> list[pd.DataFrame]:
-    """Findings against analysis windows in study days (the rule of :func:`panelfx.analysis_visit`)."""
+    """Findings against analysis windows in study days (the rule of :func:`panelfx.analysis_visit`).
+    Parts carry a private column ``_day`` (the study day of the occasion, the target of a missed
+    visit) for figures; :func:`panelfx.check` keeps only its report columns."""
     w = windows if isinstance(windows, Windows) else make_windows(windows)
     d = day_values(panel, day, "check(windows=...)")
     if panel.n == 0:
@@ -150,12 +152,13 @@ def window_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, windows:
             if mask.any():
                 dist = pd.Series(np.abs(signed[mask])).map(_fmt)
                 detail = dist + text + where_text(near[mask]) + "; outside every window"
-                parts.append(rows(positions[panel.original_positions(outside[mask])], problem, detail.to_numpy()))
+                part = rows(positions[panel.original_positions(outside[mask])], problem, detail.to_numpy())
+                parts.append(part.assign(_day=d[outside[mask]]))
     dist = np.nan_to_num(V.distance(d, k, w), nan=np.inf)
     extra = np.flatnonzero(_later_in_slot(s, k, panel.repeated, dist) & (k >= 0) & live)
     if len(extra):
         detail = "second record in the window of " + where_text(k[extra]) + " (another is nearer the target)"
-        parts.append(rows(positions[panel.original_positions(extra)], "extra", detail.to_numpy()))
+        parts.append(rows(positions[panel.original_positions(extra)], "extra", detail.to_numpy()).assign(_day=d[extra]))
     no_day = np.flatnonzero(live & ~present)
     if len(no_day):
         parts.append(rows(positions[panel.original_positions(no_day)], "no_day",
@@ -172,7 +175,7 @@ def window_findings(panel: Panel, positions: np.ndarray, rows: Rows, *, windows:
         # the planned time when the time column holds the study days; unknown otherwise
         part["time"] = pd.Series(targets[j], dtype="float64").to_numpy(dtype=object) if day is None else None
         part["detail"] = (where_text(j) + " has no record").to_numpy(dtype=object)
-        parts.append(part)
+        parts.append(part.assign(_day=targets[j]))
     return parts
 
 
