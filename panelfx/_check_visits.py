@@ -29,7 +29,8 @@ from . import _visits as V
 from ._panel import Panel
 from .errors import OptionError
 from .transforms.analysis_visit import day_values
-from .visit_windows import Windows, windows as make_windows
+from .visit_windows import Windows
+from .visit_windows import windows as make_windows
 
 Rows = Callable[[np.ndarray, str, Any], pd.DataFrame]  # (frame positions, problem, detail) -> report part
 

@@ -12,7 +12,8 @@ from ._check_visits import window_findings
 from ._panel import Panel
 from .errors import OptionError
 from .transforms.analysis_visit import day_values
-from .visit_windows import Windows, windows as make_windows
+from .visit_windows import Windows
+from .visit_windows import windows as make_windows
 
 #: Fill colours of the window bands, alternating.
 BAND_COLOURS = ("#dbe8f5", "#eef3f9")

@@ -14,7 +14,8 @@ from ._panel import Panel
 from .errors import ColumnExistsError, OptionError
 from .transforms.analysis_visit import day_values
 from .transforms.visit_pick import VisitPick
-from .visit_windows import Windows, windows as make_windows
+from .visit_windows import Windows
+from .visit_windows import windows as make_windows
 
 #: Values of the ``record`` column, in this order.
 RECORD_STATES = ["picked", "no value", "missed"]

@@ -59,10 +59,10 @@ class Windows:
     def __post_init__(self) -> None:
         if self.overlap not in OVERLAP_RULES:
             raise OptionError(f"overlap must be one of {list(OVERLAP_RULES)}, got {self.overlap!r}")
-        rows = self.items
-        if isinstance(rows, (str, bytes)) or not isinstance(rows, Iterable):
-            raise OptionError(f"windows must be a list of (label, low, high, target) rows, got {rows!r}")
-        rows = list(rows)
+        given: Any = self.items
+        if isinstance(given, (str, bytes)) or not isinstance(given, Iterable):
+            raise OptionError(f"windows must be a list of (label, low, high, target) rows, got {given!r}")
+        rows = list(given)
         if not rows:
             raise OptionError("windows must hold at least one window")
         clean: list[Row] = []
@@ -171,4 +171,5 @@ def windows(rows: Iterable[Sequence[Any]] | pd.DataFrame | Windows, *,
         return Windows.from_frame(rows, overlap=overlap)
     if isinstance(rows, (str, bytes)) or not isinstance(rows, Iterable):
         raise OptionError(f"windows must be a list of (label, low, high, target) rows, got {rows!r}")
-    return Windows(tuple(tuple(r) if isinstance(r, list) else r for r in rows), overlap)  # type: ignore[arg-type]
+    items: Any = tuple(tuple(r) if isinstance(r, list) else r for r in rows)  # checked by Windows
+    return Windows(items, overlap)

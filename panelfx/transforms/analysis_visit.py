@@ -13,7 +13,8 @@ from .. import _visits as V
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
 from ..errors import OptionError
-from ..visit_windows import Windows, windows as make_windows
+from ..visit_windows import Windows
+from ..visit_windows import windows as make_windows
 
 
 def day_values(panel: Panel, day: str | None, what: str) -> np.ndarray:

@@ -39,7 +39,7 @@ def _calendar(v: Any) -> Any:
 def study_day(tr: Any, s: Subject) -> list[list[Any]]:
     refs = s.raw(tr.reference)
     dates = s.raw(tr.date if tr.date is not None else s.time)
-    out = []
+    out: list[Any] = []
     for v, r in zip(dates, refs):
         if v is None or r is None:
             out.append(None)
@@ -58,7 +58,10 @@ def _day(tr: Any, s: Subject) -> list[Any]:
 
 @register("analysis_visit")
 def analysis_visit(tr: Any, s: Subject) -> list[list[Any]]:
-    labels, numbers, targets, dists = [], [], [], []
+    labels: list[Any] = []
+    numbers: list[Any] = []
+    targets: list[Any] = []
+    dists: list[Any] = []
     for d in _day(tr, s):
         best = None
         if d is not None:
@@ -109,6 +112,8 @@ def _better(tr: Any, i: int, j: int, raw: list[Any], days: list[Any], targets: l
         return False
     if tr.rule in ("last", "last_on_or_before_target"):
         return True
+    a: Fraction | float
+    b: Fraction | float
     if tr.rule == "nearest":
         a, b = abs(_exact(days[i]) - _exact(targets[i])), abs(_exact(days[j]) - _exact(targets[j]))
     else:
@@ -120,10 +125,11 @@ def _better(tr: Any, i: int, j: int, raw: list[Any], days: list[Any], targets: l
 def carry_baseline(tr: Any, s: Subject) -> list[list[Any]]:
     raw = s.raw(tr.col)
     b = _baseline_position(tr, s)
-    out, flag = [], []
+    out: list[Any] = []
+    flag: list[Any] = []
     for i, v in enumerate(raw):
         fill = v is None and b is not None and i > b and raw[b] is not None
-        out.append(raw[b] if fill else v)
+        out.append(raw[b] if fill and b is not None else v)
         flag.append("BOCF" if fill else None)
     return [out, flag] if tr.flag else [out]
 
@@ -131,7 +137,8 @@ def carry_baseline(tr: Any, s: Subject) -> list[list[Any]]:
 @register("carry_worst")
 def carry_worst(tr: Any, s: Subject) -> list[list[Any]]:
     raw = s.raw(tr.col)
-    out, flag = [], []
+    out: list[Any] = []
+    flag: list[Any] = []
     worst = None
     for v in raw:
         if v is not None:
