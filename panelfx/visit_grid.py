@@ -37,7 +37,8 @@ def visit_grid(
     Each record is assigned to a planned visit as :func:`panelfx.analysis_visit` does
     (study days from ``day``, by default the time column, which must then hold numbers),
     and one record per visit is chosen as ``pick`` (a :func:`panelfx.visit_pick`) says,
-    among the records where its column is present.
+    among the records where its column is present (its rule, ``prefer`` and ``day``; the
+    visit and target come from ``windows``, not from the pick's ``visit=``/``target=``).
 
     Rows: for every subject, the planned visits from the first window up to the last window
     that starts on or before ``until`` (a number, or a column of study days constant
