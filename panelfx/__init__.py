@@ -35,8 +35,11 @@ from .errors import (
 )
 from .grid import grid
 from .summary import subject_summary
+from .transforms.analysis_visit import analysis_visit
 from .transforms.baseline import baseline
+from .transforms.carry_baseline import carry_baseline
 from .transforms.carry_forward import carry_forward
+from .transforms.carry_worst import carry_worst
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
 from .transforms.cumulative import cumulative
@@ -46,10 +49,14 @@ from .transforms.gap import gap
 from .transforms.lag import lag
 from .transforms.occasion import occasion
 from .transforms.rolling import rolling
+from .transforms.study_day import study_day
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
+from .transforms.visit_pick import visit_pick
 from .transforms.within_between import within_between
 from .variance import design_effect, variance_components
+from .visit_grid import visit_grid
+from .visit_windows import Windows, windows
 
 __version__ = "0.1.0"
 
@@ -78,6 +85,15 @@ __all__ = [
     "variance_components",
     "design_effect",
     "grid",
+    # planned visits
+    "study_day",
+    "windows",
+    "Windows",
+    "analysis_visit",
+    "visit_pick",
+    "visit_grid",
+    "carry_baseline",
+    "carry_worst",
     # errors
     "PanelError",
     "MissingColumnError",

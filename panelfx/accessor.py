@@ -52,11 +52,11 @@ class PanelAccessor:
         return derive(self._frame, *transforms, id=id, time=time, unit=unit)
 
     def check(self, *, id: str | Sequence[str], time: str, spacing: Any = None, tolerance: Any = None,
-              notes: bool = False) -> pd.DataFrame:
-        """:func:`panelfx.check` on this frame."""
+              notes: bool = False, **plan: Any) -> pd.DataFrame:
+        """:func:`panelfx.check` on this frame (``schedule=``, ``windows=``, ``day=`` as there)."""
         from .check import check
 
-        return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes)
+        return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes, **plan)
 
     def apply(self, derivation: Any) -> pd.DataFrame:
         """Apply a :class:`~panelfx.Derivation` (or the path of a saved one) to this frame."""

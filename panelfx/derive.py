@@ -144,6 +144,8 @@ def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.S
         for name, v in zip(outputs, values):
             if isinstance(v, Take):
                 v = panel.columns.take(v.col, v.rows)
+            elif isinstance(v, pd.api.extensions.ExtensionArray):  # a categorical, say: keep its dtype
+                v = v.take(panel.ordering.unsort(np.arange(len(v))))
             else:
                 v = panel.ordering.unsort(np.asarray(v))
             s = pd.Series(v, index=frame.index, name=name, copy=False)

@@ -155,6 +155,8 @@ def visit_schedule(
     subjects: int | Sequence[Hashable] | None = 40,
     seed: int = 0,
     ax: Axes | None = None,
+    windows: Any = None,
+    day: str | None = None,
 ) -> Axes:
     """One horizontal row of occasion markers per subject along the time axis.
 
@@ -165,6 +167,12 @@ def visit_schedule(
     :func:`panelfx.check` instead to reuse it.  ``subjects`` as in :func:`trajectories`.
     Subject rows carry the gid ``"subject"``, problem markers ``"problem:<name>"``.
 
+    With ``windows`` (a :func:`panelfx.windows` value) the x axis is the study day (the
+    ``day`` column, or the time column when it holds numbers): each planned window is drawn
+    as a band (gid ``"window:<label>"``) with its target as a thin line and its label on
+    top, and the findings of ``check(..., windows=)`` are marked, a missed visit at its
+    target day.
+
     >>> import matplotlib; matplotlib.use("Agg")
     >>> import matplotlib.pyplot as plt, pandas as pd
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 90, 0, 42]})
@@ -173,6 +181,9 @@ def visit_schedule(
     ['problem:late', 'problem:missed', 'subject', 'subject']
     >>> plt.close("all")
     """
+    from . import _plot_windows
+
+    _plot_windows.check_options(windows, spacing, tolerance, report, day)
     if report is not None and (spacing is not None or tolerance is not None):
         raise OptionError("give either report= or spacing=/tolerance= (to run panelfx.check), not both")
     if tolerance is not None and spacing is None:
@@ -181,6 +192,15 @@ def visit_schedule(
     panel = Panel(frame, id=id, time=time, strict=False)
     chosen = _choose(panel, subjects, seed)
     keys = _keys(panel, chosen)
+    if windows is not None:
+        _plot_windows.draw(ax, frame, panel, chosen, keys, windows, day, PROBLEM_MARKERS, _lookup)
+        ax.set_yticks(np.arange(len(chosen)))
+        ax.set_yticklabels([_label(k) for k in keys], fontsize=6 if len(chosen) > 20 else 8)
+        ax.set_ylim(len(chosen) - 0.5, -0.5)
+        ax.set_xlabel(day if day is not None else f"{time} (study day)")
+        ax.set_ylabel("subject")
+        ax.set_title(f"visits of {len(chosen)} of {panel.n_subjects} subjects in planned windows", pad=22)
+        return ax
     t = _sorted_time(panel)
     for row, g in enumerate(chosen):
         tt = t[panel.starts[g]:panel.ends[g]]

@@ -46,6 +46,34 @@ def add_levels(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
                         clinic=(sub // 2) % 2)
 
 
+def add_reference_with_gaps(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
+    """``ref_t`` as :func:`add_reference_time`, missing on the rows where ``x`` is 5."""
+    out = add_reference_time(frame, case)
+    return out.assign(ref_t=out["ref_t"].where(out["x"] != 5))
+
+
+def add_visits(frame: pd.DataFrame, case: PanelCase) -> pd.DataFrame:
+    """Study days ``ady`` (the time itself for numbers, days since 2024-01-01 for datetimes,
+    hours for timedeltas), a visit code ``vn`` (15-day buckets, missing when ``ady`` is a
+    multiple of 7) and its target day ``vt`` (the middle of the bucket: distances often tie)."""
+    t = frame[case.time]
+    if pd.api.types.is_timedelta64_dtype(t.dtype):
+        ady = (t / pd.Timedelta(1, unit="h")).astype("float64")
+    elif pd.api.types.is_numeric_dtype(t.dtype) and not isinstance(t.dtype, pd.ArrowDtype):
+        ady = t.astype("float64")
+    else:
+        naive = t.dt.tz_localize(None) if getattr(t.dt, "tz", None) is not None else t
+        ady = ((pd.Series(naive, dtype="datetime64[ns]") - pd.Timestamp("2024-01-01")) / pd.Timedelta(1, unit="D"))
+    vn = (ady // 15).where(ady % 7 != 0)
+    return frame.assign(ady=ady.to_numpy(), vn=vn.to_numpy(), vt=(vn * 15 + 7).to_numpy())
+
+
+#: Analysis windows over the generated times (-20 .. about 220): open ends, a gap (21-24).
+VISIT_WINDOWS = pfx.windows([("w1", None, 0, -5), ("w2", 1, 20, 10), ("w3", 25, 60, 40), ("w4", 61, None, 90)])
+#: Overlapping windows, the nearest target deciding (ties at 15 and 55 go to the earlier).
+OVERLAPPING = pfx.windows([("a", -30, 20, 0), ("b", 10, 50, 30), ("c", 40, 120, 80)], overlap="nearest_target")
+
+
 def numeric_time(case: PanelCase) -> bool:
     t = case.frame[case.time]
     return pd.api.types.is_numeric_dtype(t.dtype) and not pd.api.types.is_bool_dtype(t.dtype)
@@ -184,6 +212,43 @@ def _build() -> dict[str, list[Entry]]:
         spans("rolling span std", lambda s: pfx.rolling("y", "std", span=s, min_valid=2), 30, "30D"),
         spans("rolling span median left", lambda s: pfx.rolling("x", "median", span=s, closed="left"), 15,
               "15D"),
+    ]
+    cat["carry_forward"].append(fixed(pfx.carry_forward("y", flag=True)))
+    # "no_day_0" counts whole days: on datetimes here (generated float times are halves)
+    cat["study_day"] = [
+        Entry("study_day", lambda num: pfx.study_day("ref_t", "offset" if num else "no_day_0"),
+              prepare=add_reference_time, non_decreasing=(0,)),
+        fixed(pfx.study_day("ref_t", "offset"), prepare=add_reference_with_gaps),
+        Entry("study_day of another date", lambda num: pfx.study_day("ref_t", "offset" if num else "no_day_0",
+                                                                     date="ref_t", name="ref_day"),
+              prepare=add_reference_with_gaps),
+    ]
+    cat["analysis_visit"] = [
+        fixed(pfx.analysis_visit(VISIT_WINDOWS), time_kinds=NUMERIC_TIMES),
+        fixed(pfx.analysis_visit(VISIT_WINDOWS, outside="Unscheduled", name="avisit"), time_kinds=NUMERIC_TIMES),
+        fixed(pfx.analysis_visit(OVERLAPPING, day="ady"), prepare=add_visits),
+    ]
+    cat["visit_pick"] = [
+        fixed(pfx.visit_pick("y", "nearest", prefer="later", visit="vn", target="vt", day="ady"), prepare=add_visits),
+        fixed(pfx.visit_pick("y", "nearest", prefer="earlier", visit="vn", target="vt", day="ady"),
+              prepare=add_visits),
+        fixed(pfx.visit_pick("y", "first", visit="vn"), prepare=add_visits),
+        fixed(pfx.visit_pick("y", "last", visit="vn"), prepare=add_visits),
+        fixed(pfx.visit_pick("x", "max", prefer="earlier", visit="vn"), prepare=add_visits),
+        fixed(pfx.visit_pick("y", "min", prefer="later", visit="vn"), prepare=add_visits),
+        fixed(pfx.visit_pick("y", "last_on_or_before_target", visit="vn", target="vt", day="ady"),
+              prepare=add_visits),
+    ]
+    cat["carry_baseline"] = [
+        fixed(pfx.carry_baseline("y")),
+        fixed(pfx.carry_baseline("y", "first", flag=True)),
+        fixed(pfx.carry_baseline("y", "last_before", reference="ref_t", flag=True), prepare=add_reference_time),
+        fixed(pfx.carry_baseline("flag")),
+    ]
+    cat["carry_worst"] = [
+        fixed(pfx.carry_worst("y", "max")),
+        fixed(pfx.carry_worst("y", "min", flag=True)),
+        fixed(pfx.carry_worst("x", "max", flag=True)),
     ]
     return cat
 

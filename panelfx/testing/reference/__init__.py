@@ -87,6 +87,7 @@ class Subject:
     unit: str | None  # unit of durations for datetime times; None for numeric times
     decimal: bool = True  # numeric times (and spans) compared as the decimals they print as
     whole: pd.DataFrame | None = None  # every row of the frame, for means pooled over subjects
+    time: str = ""  # the time column's name (its values: ``raw(time)``)
 
     def raw(self, col: str) -> list[Any]:
         """Values as Python objects, None where missing."""
@@ -180,7 +181,7 @@ def reference(
             times = [Subject(rows, [], unit, decimal).native(v) for v in rows[time].tolist()]
             seq = rows[order].tolist() if order is not None else [0] * len(positions)
             by = sorted(range(len(positions)), key=lambda j: (times[j], seq[j]))
-            subj = Subject(rows.iloc[by], [times[j] for j in by], unit, decimal, whole=work)
+            subj = Subject(rows.iloc[by], [times[j] for j in by], unit, decimal, whole=work, time=time)
             results = fn(tr, subj)
             for out, res in zip(outs, results):
                 for j, v in zip(by, res):
