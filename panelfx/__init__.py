@@ -22,15 +22,20 @@ from .errors import (
     ColumnExistsError,
     ColumnTypeError,
     DuplicateOccasionError,
+    IntervalError,
+    MissingTableError,
     MissingColumnError,
     NotConstantError,
     NullKeyError,
     OptionError,
     PanelError,
     PrecisionError,
+    TiedRecordsError,
     TimeTypeError,
 )
 from .summary import subject_summary
+from .treatment_emergent import treatment_emergent
+from .transforms.as_of import as_of
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
 from .transforms.change_from_baseline import change_from_baseline
@@ -38,10 +43,13 @@ from .transforms.change_from_previous import change_from_previous
 from .transforms.cumulative import cumulative
 from .transforms.events_so_far import events_so_far
 from .transforms.ever import ever
+from .transforms.dose_dates import first_dose, last_dose
+from .transforms.exposure import exposure
 from .transforms.gap import gap
 from .transforms.lag import lag
 from .transforms.occasion import occasion
 from .transforms.rolling import rolling
+from .transforms.table_window import table_window
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
@@ -68,7 +76,13 @@ __all__ = [
     "occasion",
     "gap",
     "rolling",
+    "as_of",
+    "table_window",
+    "exposure",
+    "first_dose",
+    "last_dose",
     "subject_summary",
+    "treatment_emergent",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -81,4 +95,7 @@ __all__ = [
     "NotConstantError",
     "OptionError",
     "DerivationFileError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
 ]

@@ -90,6 +90,7 @@ class Panel:
         self.axis = axis.take(self.ordering.order)
         self.subjects = Subjects.from_codes(codes)
         self.columns = Columns(frame, self.ordering, self._ids_at_caller)
+        self.tables: dict[str, Any] = {}  # name -> _tables.SideTable, set by derive(tables=)
         self.repeated = np.zeros(self.n, dtype=bool)  # same subject and time as the row before
         if self.n > 1:
             t = self.axis.t

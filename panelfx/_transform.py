@@ -16,6 +16,7 @@ from .errors import OptionError
 
 if TYPE_CHECKING:
     from ._panel import Panel
+    from ._tables import TableUse
 
 #: type_name -> transform class; filled by ``Transform.__init_subclass__``.
 REGISTRY: dict[str, type[Transform]] = {}
@@ -53,6 +54,10 @@ class Transform:
     def compute(self, panel: Panel) -> Sequence[Any]:
         """One array per output, in the caller's row order."""
         raise NotImplementedError
+
+    def tables(self) -> tuple[TableUse, ...]:
+        """Side tables the transform reads (``derive(..., tables=)``), with the columns it reads."""
+        return ()
 
     # -- shared helpers ------------------------------------------------------------
     def options(self) -> dict[str, Any]:

@@ -23,6 +23,9 @@ __all__ = [
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
 ]
 
 #: How many offending ids an error message shows.
@@ -90,6 +93,19 @@ class NotConstantError(PanelError, ValueError):
 
 class OptionError(PanelError, ValueError):
     """A transform or function option has a value outside its rules."""
+
+
+class MissingTableError(PanelError, KeyError):
+    """A transform reads a side table (``tables={"labs": ...}``) that was not given."""
+
+
+class TiedRecordsError(PanelError, ValueError):
+    """Records of a side table share subject and time but disagree, and no tie rule was chosen."""
+
+
+class IntervalError(PanelError, ValueError):
+    """Interval records (dosing, dispensing) that cannot be used: an end before its start, or
+    records of one subject that overlap where overlaps are refused."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

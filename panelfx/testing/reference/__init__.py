@@ -21,7 +21,7 @@ import importlib
 import math
 import pkgutil
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import pandas as pd
@@ -62,6 +62,7 @@ class Subject:
     rows: pd.DataFrame  # the subject's rows, sorted by time
     times: list[float]  # numbers, or nanoseconds for datetimes / timedeltas
     unit: str | None  # unit of durations for datetime times; None for numeric times
+    tables: dict[str, pd.DataFrame] = field(default_factory=dict)  # the subject's records of each side table
 
     def raw(self, col: str) -> list[Any]:
         """Values as Python objects, None where missing."""
@@ -118,8 +119,12 @@ def reference(
     id: str | Sequence[str],
     time: str,
     unit: str | None = None,
+    tables: dict[str, pd.DataFrame] | None = None,
 ) -> pd.DataFrame:
     """What :func:`panelfx.derive` should return, computed the slow, obvious way.
+
+    ``tables`` are side tables as for :func:`panelfx.derive`: each subject sees its own
+    records of each (``Subject.tables``), found with a plain dictionary of ids.
 
     Outputs come back as float64 where every value is a number (or missing), else as
     object columns; compare with :func:`panelfx.testing.assert_matches_reference`.
@@ -134,16 +139,22 @@ def reference(
     keys = list(zip(*[frame[c].tolist() for c in id_cols]))
     for i, k in enumerate(keys):
         groups.setdefault(k, []).append(i)
+    side: dict[str, dict[Any, list[int]]] = {}
+    for name, table in (tables or {}).items():
+        side[name] = {}
+        for i, k in enumerate(zip(*[table[c].tolist() for c in id_cols])):
+            side[name].setdefault(k, []).append(i)
     for tr in transforms:
         fn = REFERENCES.get(tr.type_name)
         if fn is None:
             raise NotImplementedError(f"no reference implementation for {tr.type_name!r}")
         outs: list[list[Any]] = [[None] * len(frame) for _ in tr.outputs()]
-        for positions in groups.values():
+        for key, positions in groups.items():
             rows = work.iloc[positions]
+            mine = {name: table.iloc[side[name].get(key, [])] for name, table in (tables or {}).items()}
             times = [Subject(rows, [], unit).native(v) for v in rows[time].tolist()]
             order = sorted(range(len(positions)), key=lambda j: times[j])
-            subj = Subject(rows.iloc[order], [times[j] for j in order], unit)
+            subj = Subject(rows.iloc[order], [times[j] for j in order], unit, mine)
             results = fn(tr, subj)
             for out, res in zip(outs, results):
                 for j, v in zip(order, res):
