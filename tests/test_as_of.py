@@ -143,7 +143,7 @@ def test_datetimes_of_other_resolutions_and_zones():
     with pytest.raises(pfx.TimeTypeError, match="naive datetimes"):
         pfx.derive(tz, pfx.as_of("labs", "alt", time="drawn"), id="pid", time="when", tables={"labs": labs})
     labs_tz = pd.DataFrame({"pid": [1, 1, 1], "alt": [1.0, 5.0, 2.0],
-                            "drawn": pd.to_datetime(["2024-01-10", "2024-01-10 08:30", "2024-01-13"]).tz_localize("UTC")})
+                            "drawn": pd.to_datetime(["2024-01-10 00:00", "2024-01-10 08:30", "2024-01-13 00:00"]).tz_localize("UTC")})
     out = pfx.derive(tz, pfx.as_of("labs", "alt", time="drawn"), id="pid", time="when", tables={"labs": labs_tz})
     assert out["alt_asof"].tolist() == [1.0, 2.0]  # 09:00 in Berlin is 08:00 UTC: before the 08:30 UTC result
 
