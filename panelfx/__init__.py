@@ -23,8 +23,8 @@ from .errors import (
     ColumnTypeError,
     DuplicateOccasionError,
     IntervalError,
-    MissingTableError,
     MissingColumnError,
+    MissingTableError,
     NotConstantError,
     NullKeyError,
     OptionError,
@@ -34,16 +34,15 @@ from .errors import (
     TimeTypeError,
 )
 from .summary import subject_summary
-from .treatment_emergent import treatment_emergent
 from .transforms.as_of import as_of
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
 from .transforms.cumulative import cumulative
+from .transforms.dose_dates import first_dose, last_dose
 from .transforms.events_so_far import events_so_far
 from .transforms.ever import ever
-from .transforms.dose_dates import first_dose, last_dose
 from .transforms.exposure import exposure
 from .transforms.gap import gap
 from .transforms.lag import lag
@@ -53,6 +52,7 @@ from .transforms.table_window import table_window
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.within_between import within_between
+from .treatment_emergent import treatment_emergent
 
 __version__ = "0.1.0"
 

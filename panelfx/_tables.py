@@ -349,7 +349,7 @@ class SideView:
         self.order = keep if order is None else keep[order]  # caller positions of the records, in order
         take = (lambda a: a) if order is None else (lambda a: a[order])
         self.key = take(skey)
-        self.t = take(parts[1])
+        self.t = self.key if parts[1] is skey else take(parts[1])  # integer axes: the key is the time
         self.qkey = qkey
         self.qt = parts[0]
         self.n, self.m = n, m
@@ -404,6 +404,9 @@ class SideView:
         if m > 1:
             np.not_equal(self.key[1:], self.key[:-1], out=is_start[1:])
             is_start[self.subjects.starts] = True
+        if is_start.all():  # no tied records: each record is its own run (the common case, no copies)
+            return Runs(rows=Subjects(n=m, starts=np.arange(m), ends=np.arange(1, m + 1), grp=np.arange(m)),
+                        groups=self.subjects, key=self.key, t=self.t, search=self.search_key)
         runs = Subjects.from_starts(is_start)
         groups = Subjects.from_codes(self.subjects.grp[runs.starts]) if m else Subjects.from_codes(
             np.zeros(0, dtype=np.int64))

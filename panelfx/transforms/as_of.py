@@ -163,7 +163,7 @@ class AsOf(Transform):
     # ------------------------------------------------------------------ computation
     def compute(self, panel: Panel) -> Sequence[Any]:
         view = panel.tables[self.table].view(self.time)
-        groups = [(c,) for c in self.cols] if not self.together else [self.cols]
+        groups: list[tuple[str, ...]] = [(c,) for c in self.cols] if not self.together else [self.cols]
         if not self.cols:
             groups = [()]
         search = _Search(view, self)
@@ -233,16 +233,23 @@ class _Search:
         runs = self.view.runs
         direction = self.tr.direction
         b = f = None
+        every = bool(found.all())  # every run offers a value: no search back past missing ones
         if direction in ("backward", "nearest"):
-            last = K.last_index_upto(runs.groups, found)
-            b = np.where(self.back >= 0, last[np.maximum(self.back, 0)], -1)
+            if every:
+                b = self.back
+            else:
+                last = K.last_index_upto(runs.groups, found)
+                b = np.where(self.back >= 0, last[np.maximum(self.back, 0)], -1)
             if self.back_thr is not None:
                 b = np.where((b >= 0) & (runs.key[np.maximum(b, 0)] >= self.back_thr), b, -1)
             if direction == "backward":
                 return b
         if direction in ("forward", "nearest"):
-            nxt = next_index_from(runs.groups, found)
-            f = np.where(self.fwd >= 0, nxt[np.maximum(self.fwd, 0)], -1)
+            if every:
+                f = self.fwd
+            else:
+                nxt = next_index_from(runs.groups, found)
+                f = np.where(self.fwd >= 0, nxt[np.maximum(self.fwd, 0)], -1)
             if self.fwd_thr is not None:
                 f = np.where((f >= 0) & (runs.key[np.maximum(f, 0)] < self.fwd_thr), f, -1)
             if direction == "forward":
@@ -464,8 +471,8 @@ def as_of(
     """
     return AsOf(table=table, col=col if col is None or isinstance(col, str) else tuple(col), time=time,
                 within=within, direction=direction, include_current=include_current, skip_missing=skip_missing,
-                together=together, ties=ties, order=order, keep=tuple(keep) if not isinstance(keep, str) else keep,
-                name=name, names=tuple(names) if names is not None and not isinstance(names, str) else names)
+                together=together, ties=ties, order=order, keep=tuple(keep),  # a str is refused by the checks
+                name=name, names=tuple(names) if names is not None else None)
 
 
 __all__ = ["as_of", "AsOf"]

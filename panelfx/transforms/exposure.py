@@ -267,10 +267,10 @@ def intervals(view: SideView, tr: Any) -> Intervals:
             if tie.any():
                 where = np.flatnonzero(tie)
                 ids = view.ids_of_records(where)
+                what = f"{name}.{tr.start}"
                 raise TiedRecordsError(rows_message(f"records of side table {name!r} start at the same time: "
-                                                    f"overlap='latest' cannot tell which supersedes", f"{name}.{tr.start}",
-                                                    len(where), ids), column=f"{name}.{tr.start}",
-                                       count=len(where), ids=ids)
+                                                    f"overlap='latest' cannot tell which supersedes", what,
+                                                    len(where), ids), column=what, count=len(where), ids=ids)
             nxt = np.where(same_subject, start[1:], end[:-1])
             end = end.copy()
             end[:-1] = np.minimum(end[:-1], nxt)

@@ -108,7 +108,7 @@ def _tie_value(tr: Any, values: list[Any], order: list[Any], group: list[str], r
 @register("table_window")
 def table_window(tr: Any, s: Subject) -> list[list[Any]]:
     recs, rt = _records(s, tr.table, tr.time)
-    vals = [_value(v) for v in recs[tr.col].tolist()] if tr.col and len(recs) else [None] * len(rt)
+    vals: list[Any] = [_value(v) for v in recs[tr.col].tolist()] if tr.col and len(recs) else [None] * len(rt)
     span = s.span(tr.span) if tr.span is not None else None
     out: list[Any] = []
     for t in s.times:
@@ -121,7 +121,7 @@ def table_window(tr: Any, s: Subject) -> list[list[Any]]:
         if tr.col is None:
             out.append(len(inside) > 0 if tr.stat == "any" else len(inside))
             continue
-        present = [vals[j] for j in inside if vals[j] is not None]
+        present: list[Any] = [vals[j] for j in inside if vals[j] is not None]
         if tr.stat == "count":
             out.append(len(present))
         elif len(present) < tr.min_valid:
