@@ -170,6 +170,13 @@ class SideTable:
         """Per record: the panel subject (0 .. subjects - 1, in the panel's subject order) or -1."""
         count = panel.subjects.count
         firsts = panel.ordering.positions(panel.subjects.starts)
+        if len(id_cols) == 1:
+            mine_s, theirs_s = panel.frame[id_cols[0]], self.frame[id_cols[0]]
+            if isinstance(mine_s.dtype, np.dtype) and isinstance(theirs_s.dtype, np.dtype) \
+                    and mine_s.dtype.kind in "iu" and theirs_s.dtype.kind in "iu":
+                # plain integer ids: one hash lookup of each record's id among the panel's subjects
+                index = pd.Index(mine_s.to_numpy()[firsts])
+                return index.get_indexer(theirs_s.to_numpy()).astype(np.int64, copy=False)
         codes: np.ndarray | None = None
         for c in id_cols:
             mine = panel.frame[c].iloc[firsts].reset_index(drop=True)
@@ -290,6 +297,11 @@ class _SideColumns(Columns):
         s.name = f"{self.table.name}.{col}"
         return s
 
+    def any_missing(self, col: str) -> bool:
+        """Whether the column has a missing value among the table's records (no reordering)."""
+        return self._cached(col, "any_missing", lambda: bool(self.frame[col].isna().to_numpy()[
+            self.ordering.order].any()) if self.ordering.order is not None else bool(self.frame[col].isna().any()))
+
     def codes(self, col: str) -> np.ndarray:
         """Equality codes of a column in record order (any dtype; -1 where missing)."""
         return self._cached(col, "codes", lambda: self.ordering.sort(pd.factorize(self.frame[col])[0]))
@@ -345,11 +357,11 @@ class SideView:
         key = joint.key
         qkey, skey = key[:n], key[n:n + m]
         psub = table.psub[keep]
-        order = _record_order(psub, skey)
+        order, sorted_psub = _record_order(psub, skey)
         self.order = keep if order is None else keep[order]  # caller positions of the records, in order
         take = (lambda a: a) if order is None else (lambda a: a[order])
         self.key = take(skey)
-        self.t = self.key if parts[1] is skey else take(parts[1])  # integer axes: the key is the time
+        self.t = self.key if joint.key is joint.t else take(parts[1])  # integer axes: the key is the time
         self.qkey = qkey
         self.qt = parts[0]
         self.n, self.m = n, m
@@ -357,7 +369,6 @@ class SideView:
         for k, col in enumerate(ends):
             lo = n + m * (k + 1)
             self.ends[col] = (take(parts[2 + k]), take(key[lo:lo + m]), take(end_missing[k]))
-        sorted_psub = take(psub)
         self.subjects = Subjects.from_codes(sorted_psub)
         self.side_of = np.full(panel.subjects.count, -1, dtype=np.int64)
         if m:
@@ -441,17 +452,18 @@ class Runs:
     search: K.SearchKey
 
 
-def _record_order(psub: np.ndarray, key: np.ndarray) -> np.ndarray | None:
-    """Sort records by (panel subject, time key); ``None`` when already in that order."""
+def _record_order(psub: np.ndarray, key: np.ndarray) -> tuple[np.ndarray | None, np.ndarray]:
+    """Sort records by (panel subject, time key): (the order, ``None`` when already in that order;
+    the subjects in that order)."""
     m = len(psub)
     if m < 2:
-        return None
+        return None, psub
     same = psub[1:] == psub[:-1]
     if not (psub[1:] < psub[:-1]).any() and not ((key[1:] < key[:-1]) & same).any():
-        return None
-    ordering, _ = _sort(psub, key, None)
+        return None, psub
+    ordering, sorted_psub = _sort(psub, key, None)
     assert ordering.order is not None
-    return ordering.order
+    return ordering.order, sorted_psub
 
 
 # ---------------------------------------------------------------------------------- results

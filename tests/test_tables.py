@@ -83,3 +83,10 @@ def test_command_line_with_tables(tmp_path, capsys):
     assert "reads no table of that name" in capsys.readouterr().err
     assert cli.COMMANDS["dictionary"]([str(tmp_path / "d.json"), "--csv"]) == 0
     assert "labs.alt" in capsys.readouterr().out
+
+
+def test_accessor_passes_tables():
+    d = derivation()
+    pd.testing.assert_frame_equal(VISITS.pfx.apply(d, TABLES), d.apply(VISITS, TABLES))
+    pd.testing.assert_frame_equal(VISITS.pfx.derive(*d.transforms, id="pid", time="day", tables=TABLES),
+                                  pfx.derive(VISITS, *d.transforms, id="pid", time="day", tables=TABLES))

@@ -320,7 +320,12 @@ def resolve_ties(view: SideView, cols: tuple[str, ...], skip_missing: bool, ties
     considered = np.ones(m, dtype=bool)
     if skip_missing:
         for c in cols:
-            considered &= ~view.columns.missing(c)
+            if view.columns.any_missing(c):
+                considered &= ~view.columns.missing(c)
+    if r == m and considered.all():  # no tied records, every value present: each record is its own
+        rep_all = np.arange(m)
+        direct = {c: view.columns.numeric(c) for c in cols} if ties == "mean" else {}
+        return np.ones(r, dtype=bool), {c: rep_all for c in cols}, direct
     if r == 0:
         empty = np.zeros(0, dtype=np.int64)
         return np.zeros(0, dtype=bool), {c: empty for c in cols}, {c: np.zeros(0) for c in cols}
