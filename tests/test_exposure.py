@@ -215,3 +215,18 @@ def test_table_window_matches_duckdb_range_join(data, span):
         ON e.pid = v.pid AND e.start > v.day - {span} AND e.start <= v.day GROUP BY v.index ORDER BY v.index""").df()
     np.testing.assert_array_equal(out[f"ex_count_{span}"].to_numpy(), want["n"].to_numpy())
     np.testing.assert_allclose(out[f"mg_sum_{span}"].to_numpy(), want["s"].to_numpy(), rtol=1e-12, atol=1e-12)
+
+
+@settings(max_examples=30, deadline=None)
+@given(data=dosing())
+def test_first_and_last_dose_match_duckdb_group_by(data):
+    duckdb = pytest.importorskip("duckdb")
+    visits, ex = data
+    out = ex_run(visits, pfx.first_dose("ex", start="start"), pfx.last_dose("ex", start="start", end="end"), ex=ex)
+    con = duckdb.connect()
+    con.register("v", visits.reset_index())
+    con.register("e", ex)
+    want = con.execute("""SELECT v.index AS i, MIN(e.start) AS f, MAX(e."end") AS l FROM v LEFT JOIN e
+                          ON e.pid = v.pid GROUP BY v.index ORDER BY v.index""").df()
+    np.testing.assert_array_equal(out["ex_first_dose"].to_numpy(dtype=float), want["f"].to_numpy(dtype=float))
+    np.testing.assert_array_equal(out["ex_last_dose"].to_numpy(dtype=float), want["l"].to_numpy(dtype=float))

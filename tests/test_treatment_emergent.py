@@ -7,6 +7,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import panelfx as pfx
 
@@ -62,3 +64,37 @@ def test_open_ends_dates_and_errors():
         te(dates.assign(treatment_emergent=1), dosing=dosing, after_last="1D")
     with pytest.raises(pfx.OptionError, match="after_last must be"):
         te(ae, dosing=EX, after_last=-1)
+
+
+@settings(max_examples=40, deadline=None)
+@given(data=st.data())
+def test_matches_duckdb_case_sql(data):
+    """The same rules written as SQL over per-subject first and last dose (DuckDB)."""
+    duckdb = pytest.importorskip("duckdb")
+    n = data.draw(st.integers(1, 12))
+    ae = pd.DataFrame({"pid": data.draw(st.lists(st.integers(0, 3), min_size=n, max_size=n)),
+                       "onset": data.draw(st.lists(st.one_of(st.integers(0, 80).map(float), st.just(np.nan)),
+                                                   min_size=n, max_size=n))})
+    k = data.draw(st.integers(0, 5))
+    starts = data.draw(st.lists(st.integers(0, 50), min_size=k, max_size=k))
+    ex = pd.DataFrame({"pid": data.draw(st.lists(st.integers(0, 2), min_size=k, max_size=k)), "start": starts,
+                       "end": [s + data.draw(st.integers(0, 20)) for s in starts]}).astype("int64")
+    after = data.draw(st.integers(0, 15))
+    got = te(ae, dosing=ex, after_last=after)
+    con = duckdb.connect()
+    con.register("ae", ae.reset_index())
+    con.register("ex", ex)
+    want = con.execute(f"""
+        WITH d AS (SELECT pid, MIN(start) AS f, MAX("end") AS l FROM ex GROUP BY pid)
+        SELECT ae.index AS i, CASE
+            WHEN d.f IS NULL THEN 'no dosing'
+            WHEN ae.onset IS NULL THEN 'onset unknown'
+            WHEN ae.onset > d.l + {after} THEN 'after window'
+            WHEN ae.onset < d.f THEN 'before first dose'
+            WHEN ae.onset <= d.l THEN 'on treatment'
+            ELSE 'within' END AS reason
+        FROM ae LEFT JOIN d ON ae.pid = d.pid ORDER BY ae.index""").df()
+    reasons = got["treatment_emergent_reason"].astype(str).str.replace(r"^within .*", "within", regex=True)
+    assert reasons.tolist() == want["reason"].tolist()
+    flagged = want["reason"].isin(["onset unknown", "on treatment", "within"]).tolist()
+    assert got["treatment_emergent"].tolist() == flagged
