@@ -11,7 +11,7 @@ import pandas as pd
 
 from ._columns import to_float
 from ._panel import as_id_list, require_columns
-from ._tables import common_axis
+from ._tables import _family, common_axis
 from ._time import INT_MAX, INT_MIN, TimeAxis
 from .errors import ColumnExistsError, ColumnTypeError, NullKeyError, OptionError, TimeTypeError, rows_message
 from .transforms._spans import check_span, span_words
@@ -184,6 +184,10 @@ def _subjects(events: pd.DataFrame, dosing: pd.DataFrame, ids: list[str]) -> tup
     codes: np.ndarray | None = None
     for c in ids:
         a, b = events[c], dosing[c]
+        fa, fb = _family(a), _family(b)
+        if "any" not in (fa, fb) and fa != fb and len(a) and len(b):
+            raise ColumnTypeError(f"id column {c!r} holds {fa} in the events table but {fb} in the dosing table: "
+                                  f"no subject could match", column=c, count=len(b))
         both = pd.concat([a, b], ignore_index=True) if a.dtype == b.dtype else \
             pd.Series(np.concatenate([a.to_numpy(dtype=object), b.to_numpy(dtype=object)]), dtype=object)
         k, uniq = pd.factorize(both, sort=False)

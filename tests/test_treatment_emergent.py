@@ -62,6 +62,8 @@ def test_open_ends_dates_and_errors():
         te(ae.assign(onset=pd.Timestamp("2024-01-01")), dosing=EX, open_end="until_time")
     with pytest.raises(pfx.ColumnExistsError):
         te(dates.assign(treatment_emergent=1), dosing=dosing, after_last="1D")
+    with pytest.raises(pfx.ColumnTypeError, match="holds text in the events table but numbers"):
+        te(ae.assign(pid="2"), dosing=EX)
     with pytest.raises(pfx.OptionError, match="after_last must be"):
         te(ae, dosing=EX, after_last=-1)
 

@@ -413,7 +413,9 @@ def exposure(
     Each record covers [``start``, ``end``]: with ``inclusive`` (default) both days count,
     so 3 to 16 January is 14 days (numbers: the end plus one time unit); ``supply`` (days'
     supply, instead of ``end``) covers ``supply`` days from the start.  ``dose`` is a rate
-    per time unit (per day for datetime times with the default ``unit``).  Statistics at
+    per time unit (per day for datetime times with the default ``unit``).  Inclusive ends
+    read times as days (each time the start of its day); for times of day (an infusion from
+    08:00 to 12:00) use ``inclusive=False``, where a record covers [start, end).  Statistics at
     each row's time t:
 
     - ``"cumulative"``: dose x covered time up to t, the day of t included; with
