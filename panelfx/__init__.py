@@ -24,18 +24,22 @@ from .errors import (
     ColumnTypeError,
     ConflictingTiesError,
     DuplicateOccasionError,
+    IntervalError,
     MissingColumnError,
+    MissingTableError,
     NestingError,
     NotConstantError,
     NullKeyError,
     OptionError,
     PanelError,
     PrecisionError,
+    TiedRecordsError,
     TimeTypeError,
 )
 from .grid import grid
 from .summary import subject_summary
 from .transforms.analysis_visit import analysis_visit
+from .transforms.as_of import as_of
 from .transforms.baseline import baseline
 from .transforms.carry_baseline import carry_baseline
 from .transforms.carry_forward import carry_forward
@@ -43,17 +47,21 @@ from .transforms.carry_worst import carry_worst
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
 from .transforms.cumulative import cumulative
+from .transforms.dose_dates import first_dose, last_dose
 from .transforms.events_so_far import events_so_far
 from .transforms.ever import ever
+from .transforms.exposure import exposure
 from .transforms.gap import gap
 from .transforms.lag import lag
 from .transforms.occasion import occasion
 from .transforms.rolling import rolling
 from .transforms.study_day import study_day
+from .transforms.table_window import table_window
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
 from .transforms.visit_pick import visit_pick
 from .transforms.within_between import within_between
+from .treatment_emergent import treatment_emergent
 from .variance import design_effect, variance_components
 from .visit_grid import visit_grid
 from .visit_windows import Windows, windows
@@ -80,6 +88,11 @@ __all__ = [
     "occasion",
     "gap",
     "rolling",
+    "as_of",
+    "table_window",
+    "exposure",
+    "first_dose",
+    "last_dose",
     "subject_summary",
     "collapse_ties",
     "variance_components",
@@ -94,6 +107,7 @@ __all__ = [
     "visit_grid",
     "carry_baseline",
     "carry_worst",
+    "treatment_emergent",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -108,4 +122,7 @@ __all__ = [
     "OptionError",
     "NestingError",
     "DerivationFileError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
 ]

@@ -24,12 +24,23 @@ from .errors import ColumnTypeError, MissingColumnError, PrecisionError, rows_me
 EXACT_FLOAT_INT = 2**53
 
 
+class Deferred:
+    """A transform's result that ``derive`` turns into caller-order values itself (dtype kept)."""
+
+    def resolve(self, panel: Any) -> Any:
+        """The values in the caller's row order: an array or extension array of ``panel.n``."""
+        raise NotImplementedError
+
+
 @dataclass(frozen=True)
-class Take:
+class Take(Deferred):
     """A transform's result "column ``col`` at sorted rows ``rows``" (-1: missing), dtype kept."""
 
     col: str
     rows: np.ndarray
+
+    def resolve(self, panel: Any) -> Any:
+        return panel.columns.take(self.col, self.rows)
 
 
 class Columns:

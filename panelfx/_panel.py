@@ -126,6 +126,7 @@ class Panel:
         self.axis = axis.take(self.ordering.order)
         self.subjects = Subjects.from_codes(codes)
         self.columns = Columns(frame, self.ordering, self._ids_at_caller, keys={time: key_column(frame, time)})
+        self.tables: dict[str, Any] = {}  # name -> _tables.SideTable, set by derive(tables=)
         # tied: same subject and time as the row before; repeated: also the same order value
         self.tied = np.zeros(self.n, dtype=bool)
         if self.n > 1:

@@ -16,6 +16,7 @@ from .errors import OptionError
 
 if TYPE_CHECKING:
     from ._panel import Panel
+    from ._tables import TableUse
 
 #: type_name -> transform class; filled by ``Transform.__init_subclass__``.
 REGISTRY: dict[str, type[Transform]] = {}
@@ -64,6 +65,10 @@ class Transform:
         unit of time), "area" (value x time) or None (no time unit: a value, a count, a time).
         ``time`` is the panel's time column (a difference of it is a duration)."""
         return (None,) * len(self.outputs())
+
+    def tables(self) -> tuple[TableUse, ...]:
+        """Side tables the transform reads (``derive(..., tables=)``), with the columns it reads."""
+        return ()
 
     # -- shared helpers ------------------------------------------------------------
     def options(self) -> dict[str, Any]:

@@ -155,6 +155,11 @@ class Derivation:
             made.update(tr.outputs())
         return tuple(need)
 
+    def tables(self) -> tuple[str, ...]:
+        """Names of the side tables ``apply`` needs (``tables={name: frame}``), in order of first use.
+        The derivation stores only these names and the columns read, never data."""
+        return tuple(dict.fromkeys(use.name for tr in self.transforms for use in tr.tables()))
+
     def outputs(self) -> tuple[str, ...]:
         """Names of the columns ``apply`` adds, in order."""
         return tuple(name for tr in self.transforms for name in tr.outputs())
@@ -177,12 +182,12 @@ class Derivation:
         return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
                           description=self.description, order=self.order, time_unit=self.time_unit)
 
-    def apply(self, frame: pd.DataFrame) -> pd.DataFrame:
-        """``derive(frame, *transforms, id=, time=, unit=)``, with the provenance (this
+    def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
+        """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
         derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
         already on the input is kept under ``"previous"``."""
         out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
-                     time_unit=self.time_unit)
+                     time_unit=self.time_unit, tables=tables)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
             "dictionary": _dictionary_records(self._dictionary_from_result(out)),
@@ -194,10 +199,11 @@ class Derivation:
         return out
 
     # -------------------------------------------------------------- data dictionary
-    def dictionary(self, frame: pd.DataFrame | None = None) -> pd.DataFrame:
+    def dictionary(self, frame: pd.DataFrame | None = None,
+                   tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
         """One row per output column: ``column``, ``step`` (the transform's number, from 1),
         ``transform`` (type name), ``sources`` (the columns it reads besides id and time,
-        comma-separated; empty when it uses only id and time), ``description`` (the
+        comma-separated, side-table columns as ``labs.alt``; empty when it uses only id and time), ``description`` (the
         options in words), ``past_only``, ``dtype`` and ``time_unit``.
 
         ``past_only`` is True only when the transform is past-only *and* every derived
@@ -221,7 +227,7 @@ class Derivation:
         1  sbp_baseline_lag1     2       lag  sbp_baseline      False
         """
         if frame is not None:
-            return self._dictionary_from_result(self.apply(frame))
+            return self._dictionary_from_result(self.apply(frame, tables))
         if self.unit is not None or self.time_unit is not None:
             unit = _unit_words(self.unit or self.time_unit or "D")
         else:
@@ -240,7 +246,7 @@ class Derivation:
         rows = []
         past: dict[str, bool] = {}
         for step, tr in enumerate(self.transforms, start=1):
-            sources = tr.inputs()
+            sources = (*tr.inputs(), *(f"{u.name}.{c}" for u in tr.tables() for c in u.all_columns()))
             only_past = bool(tr.past_only) and all(past.get(c, True) for c in sources)
             outs = tr.outputs()
             kinds = tr.unit_kinds(self.time)

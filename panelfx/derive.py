@@ -2,25 +2,30 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from ._columns import Take
+from ._columns import Deferred
 from ._panel import Panel, as_id_list
+from ._tables import check_table_uses, side_tables
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
 
 def plan(
-    columns: Sequence[str] | None, transforms: Sequence[Transform], id_cols: Sequence[str], time: str
+    columns: Sequence[str] | None, transforms: Sequence[Transform], id_cols: Sequence[str], time: str,
+    tables: Mapping[str, Sequence[str]] | None = None,
 ) -> list[str]:
     """Check, before anything is computed, that every transform finds its inputs (in the
     frame or made by an earlier transform) and that no output overwrites a column.
 
     ``columns`` are the frame's columns; ``None`` when no frame is at hand yet (a saved
     derivation): inputs that no transform makes are then assumed to come from the frame.
+    ``tables`` maps the side tables given to their columns: every table a transform reads
+    must be there with the columns it reads (``None``: not checked, no tables at hand).
     Returns the output names in order.  An error's ``position`` is the 0-based index of
     the offending transform.
     """
@@ -28,6 +33,8 @@ def plan(
     for i, tr in enumerate(transforms):
         try:
             _plan_one(i, tr, transforms, made, columns, set(id_cols), time)
+            if tables is not None:
+                check_table_uses(tr.tables(), tables, f"transform #{i + 1} ({tr.type_name})", id_cols)
         except PanelError as err:
             err.position = i  # type: ignore[attr-defined]
             raise
@@ -79,6 +86,7 @@ def derive(
     unit: str | None = None,
     order: str | None = None,
     time_unit: str | None = None,
+    tables: Mapping[str, pd.DataFrame] | None = None,
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -100,6 +108,11 @@ def derive(
     so past-only transforms stay past-only; the gap between tied rows is 0 and a rate over
     it is missing.  (id, time, order) must be unique.  Physical row order never breaks a tie.
 
+    ``tables`` names side tables (``{"labs": labs, "ex": dosing}``) for the transforms that
+    read records beside the panel (:func:`~panelfx.as_of`, :func:`~panelfx.table_window`,
+    :func:`~panelfx.exposure`); each carries the id columns under the same names, and is
+    validated and ordered once for all transforms.
+
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
     are needed, or an output name that already exists.
@@ -116,8 +129,9 @@ def derive(
     if not isinstance(frame, pd.DataFrame):
         raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     # the transform list is checked before any O(n log n) work
-    names = plan(list(frame.columns), transforms, as_id_list(id), time)
+    names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
+    panel.tables = side_tables(panel, tables)
     new = compute_all(panel, transforms)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
@@ -125,6 +139,16 @@ def derive(
     # is never modified.
     added = pd.DataFrame({k: v.array for k, v in new.items()}, index=frame.index)
     return pd.concat([frame, added], axis=1) if new else frame.copy()
+
+
+def table_columns(tables: Mapping[str, Any] | None) -> dict[str, list[str]]:
+    """Names and columns of the side tables given (for :func:`plan`); checks it is a mapping."""
+    if tables is None:
+        return {}
+    if not isinstance(tables, Mapping):
+        raise OptionError(f"tables must be a mapping of names to data frames, e.g. {{'labs': labs}}, "
+                          f"got {type(tables).__name__}")
+    return {name: list(getattr(t, "columns", [])) for name, t in tables.items()}
 
 
 def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.Series]:
@@ -142,8 +166,8 @@ def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.S
             raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
                              f"{len(outputs)} outputs {list(outputs)}")
         for name, v in zip(outputs, values):
-            if isinstance(v, Take):
-                v = panel.columns.take(v.col, v.rows)
+            if isinstance(v, Deferred):  # a Take, or values from a side table
+                v = v.resolve(panel)
             elif isinstance(v, pd.api.extensions.ExtensionArray):  # a categorical, say: keep its dtype
                 v = v.take(panel.ordering.unsort(np.arange(len(v))))
             else:

@@ -25,6 +25,9 @@ __all__ = [
     "NotConstantError",
     "OptionError",
     "NestingError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
 ]
 
 #: How many offending ids an error message shows.
@@ -100,6 +103,19 @@ class OptionError(PanelError, ValueError):
 
 class NestingError(PanelError, ValueError):
     """Nested levels that do not nest: a unit (a clinic, a subject) seen under two parents."""
+
+
+class MissingTableError(PanelError, KeyError):
+    """A transform reads a side table (``tables={"labs": ...}``) that was not given."""
+
+
+class TiedRecordsError(PanelError, ValueError):
+    """Records of a side table share subject and time but disagree, and no tie rule was chosen."""
+
+
+class IntervalError(PanelError, ValueError):
+    """Interval records (dosing, dispensing) that cannot be used: an end before its start, or
+    records of one subject that overlap where overlaps are refused."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -15,6 +15,7 @@ import dataclasses
 from collections.abc import Callable
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 import panelfx as pfx
@@ -74,6 +75,53 @@ VISIT_WINDOWS = pfx.windows([("w1", None, 0, -5), ("w2", 1, 20, 10), ("w3", 25, 
 OVERLAPPING = pfx.windows([("a", -30, 20, 0), ("b", 10, 50, 30), ("c", 40, 120, 80)], overlap="nearest_target")
 
 
+def _step(t: pd.Series, k: float) -> Any:
+    """k time units of a time column: k for numbers, k days for datetimes, k hours for timedeltas."""
+    if pd.api.types.is_numeric_dtype(t.dtype) and not pd.api.types.is_bool_dtype(t.dtype):
+        return k
+    return pd.Timedelta(k, unit="h" if pd.api.types.is_timedelta64_dtype(t.dtype) else "D")
+
+
+def side_tables(frame: pd.DataFrame, case: PanelCase) -> dict[str, pd.DataFrame]:
+    """Side tables made from a panel (invented, deterministic), id columns in their own dtypes.
+
+    ``labs``: a record 2.25 units before each row (``lab`` from y, ``lab2`` from x, ``seq``
+    an order column), one more at the row's own time where x is even, exact duplicates
+    where x is 0 (ties that agree), a subject absent from the panel; not in time order.
+    ``tied``: ``labs`` plus, where x is odd, a second record at the same time with other
+    values (ties that disagree).  ``ex``: dosing records from 1 unit before to 3 after each
+    flagged row, dose from ``dose`` (overlapping)."""
+    ids = [case.id] if isinstance(case.id, str) else list(case.id)
+    t = frame[case.time]
+    base = frame[ids].reset_index(drop=True)
+    tt = t.reset_index(drop=True)
+    x = frame["x"].reset_index(drop=True).astype("float64")
+    y = frame["y"].reset_index(drop=True).astype("float64")
+    n = len(frame)
+    early = base.assign(drawn=tt - _step(t, 2.25), lab=y.to_numpy(), lab2=x.to_numpy(), seq=np.arange(n) * 4)
+    even = (x % 2 == 0).to_numpy()
+    same = base[even].assign(drawn=tt[even], lab=(y[even] * 2).to_numpy(), lab2=x[even].to_numpy() + 1,
+                             seq=np.flatnonzero(even) * 4 + 1)
+    zero = (x == 0).to_numpy()
+    dup = early[zero].assign(seq=np.flatnonzero(zero) * 4 + 2)
+    odd = (x % 2 != 0).to_numpy()
+    other = early[odd].assign(lab=(y[odd] + 1).to_numpy(), lab2=(x[odd] + 3).to_numpy(),
+                              seq=np.flatnonzero(odd) * 4 + 3)
+    parts = [early, same, dup]
+    if n and not any(isinstance(frame[c].dtype, pd.CategoricalDtype) for c in ids):
+        ghost = early.iloc[:1].copy()
+        for c in ids:  # a subject the panel does not have, with an id of the same dtype
+            v = frame[c]
+            ghost[c] = (v.iloc[:1] * 0 + 999_999).to_numpy() if pd.api.types.is_numeric_dtype(v.dtype) else "ghost"
+        parts.append(ghost)
+    labs = pd.concat(parts, ignore_index=True).iloc[::-1].reset_index(drop=True)  # not in time order
+    tied = pd.concat([labs, other], ignore_index=True)
+    flag = frame["flag"].reset_index(drop=True).astype(bool).to_numpy()
+    ex = base[flag].assign(start=tt[flag] - _step(t, 1), stop=tt[flag] + _step(t, 3),
+                           mg=frame["dose"].reset_index(drop=True)[flag].to_numpy())
+    return {"labs": labs, "tied": tied, "ex": ex}
+
+
 def numeric_time(case: PanelCase) -> bool:
     t = case.frame[case.time]
     return pd.api.types.is_numeric_dtype(t.dtype) and not pd.api.types.is_bool_dtype(t.dtype)
@@ -97,12 +145,17 @@ class Entry:
     rtol: float = 1e-9
     constant: tuple[int, ...] = ()
     non_decreasing: tuple[int, ...] = ()
+    tables: Callable[[pd.DataFrame, PanelCase], dict[str, pd.DataFrame]] | None = None
 
     def make(self, case: PanelCase) -> Transform:
         return self.build(numeric_time(case))
 
     def frame(self, case: PanelCase) -> pd.DataFrame:
         return case.frame if self.prepare is None else self.prepare(case.frame, case)
+
+    def tables_for(self, frame: pd.DataFrame, case: PanelCase) -> dict[str, pd.DataFrame] | None:
+        """The side tables the transform reads, made from the panel (``None`` when it reads none)."""
+        return None if self.tables is None else self.tables(frame, case)
 
     def example(self) -> Transform:
         """The transform for numeric times (for tests that need no panel)."""
@@ -250,6 +303,51 @@ def _build() -> dict[str, list[Entry]]:
         fixed(pfx.carry_worst("y", "min", flag=True)),
         fixed(pfx.carry_worst("x", "max", flag=True)),
     ]
+    side = {"tables": side_tables}
+    cat["as_of"] = [
+        fixed(pfx.as_of("labs", "lab", time="drawn"), **side),
+        fixed(pfx.as_of("labs", ["lab", "lab2"], time="drawn", keep=("value", "age", "time")), **side),
+        fixed(pfx.as_of("labs", ["lab", "lab2"], time="drawn", together=True, keep=("value", "age")), **side),
+        fixed(pfx.as_of("tied", "lab", time="drawn", skip_missing=False, include_current=False, ties="mean"),
+              **side),
+        fixed(pfx.as_of("tied", "lab", time="drawn", ties="last", order="seq"), **side),
+        fixed(pfx.as_of("tied", "lab", time="drawn", direction="forward", ties="max"), **side),
+        fixed(pfx.as_of("tied", "lab", time="drawn", direction="nearest", ties="min", keep=("value", "age")),
+              **side),
+        fixed(pfx.as_of("labs", time="drawn", keep=("age",)), **side),
+        spans("as_of within", lambda s: pfx.as_of("tied", "lab2", time="drawn", within=s, ties="first",
+                                                  order="seq"), 3, "3D", **side),
+        spans("as_of nearest within", lambda s: pfx.as_of("tied", "lab", time="drawn", direction="nearest",
+                                                          within=s, ties="mean"), 1, "1D", **side),
+    ]
+    cat["table_window"] = [
+        fixed(pfx.table_window("labs", time="drawn"), non_decreasing=(0,), **side),
+        fixed(pfx.table_window("labs", "lab", "max", time="drawn"), **side),
+        fixed(pfx.table_window("labs", "lab", "count", time="drawn", closed="left"), **side),
+        spans("table_window sum", lambda s: pfx.table_window("labs", "lab", "sum", time="drawn", span=s), 10,
+              "10D", **side),
+        spans("table_window mean both", lambda s: pfx.table_window("labs", "lab2", "mean", time="drawn", span=s,
+                                                                   closed="both", min_valid=2), 5, "5D", **side),
+        spans("table_window min neither", lambda s: pfx.table_window("labs", "lab", "min", time="drawn", span=s,
+                                                                     closed="neither"), 8, "8D", **side),
+        spans("table_window any", lambda s: pfx.table_window("ex", time="start", stat="any", span=s), 4, "4D",
+              **side),
+    ]
+    cat["exposure"] = [
+        fixed(pfx.exposure("ex", dose="mg", start="start", end="stop"), non_decreasing=(0,), **side),
+        fixed(pfx.exposure("ex", dose="mg", start="start", end="stop", include_current=False), **side),
+        fixed(pfx.exposure("ex", dose="mg", start="start", end="stop", stat="current"), **side),
+        fixed(pfx.exposure("ex", start="start", end="stop", stat="days_on"), non_decreasing=(0,), **side),
+        fixed(pfx.exposure("ex", dose="mg", start="start", end="stop", stat="intensity", overlap="latest"), **side),
+        fixed(pfx.exposure("ex", dose="mg", start="start", end="stop", stat="cumulative", overlap="latest",
+                           inclusive=False), **side),
+        spans("exposure on_treatment grace", lambda s: pfx.exposure("ex", start="start", end="stop",
+                                                                    stat="on_treatment", grace=s), 2, "2D", **side),
+        spans("exposure lag", lambda s: pfx.exposure("ex", dose="mg", start="start", end="stop", lag=s), 3, "3D",
+              **side),
+    ]
+    cat["first_dose"] = [fixed(pfx.first_dose("ex", start="start"), constant=(0,), **side)]
+    cat["last_dose"] = [fixed(pfx.last_dose("ex", start="start", end="stop"), constant=(0,), **side)]
     return cat
 
 
@@ -268,7 +366,7 @@ def renamed(tr: Transform, i: int) -> Transform:
     """The same transform with outputs renamed so that many can share one derive."""
     fields = {f.name for f in dataclasses.fields(tr)}
     outs = tr.outputs()
-    if "names" in fields:
+    if "names" in fields and (len(outs) > 1 or "name" not in fields):
         return dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(outs))))
     if "name" in fields and len(outs) == 1:
         return dataclasses.replace(tr, name=f"o{i}")

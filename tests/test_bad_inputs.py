@@ -236,13 +236,17 @@ def test_input_frame_is_unchanged(type_name, entry, kind):
     frame = entry.frame(case)
     before = frame.copy(deep=True)
     tr = entry.make(PanelCase(frame, "pid", "t"))
-    out = pfx.derive(frame, tr, id="pid", time="t")
+    tables = entry.tables_for(frame, case)
+    tables_before = {k: v.copy(deep=True) for k, v in (tables or {}).items()}
+    out = pfx.derive(frame, tr, id="pid", time="t", tables=tables)
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
+    for k, v in (tables or {}).items():  # side tables are never changed either
+        pd.testing.assert_frame_equal(v, tables_before[k], check_exact=True)
     assert list(frame.columns) == list(before.columns) and frame.index.equals(before.index)
     assert list(out.columns) == [*before.columns, *tr.outputs()]
     pd.testing.assert_frame_equal(out[list(before.columns)], before, check_exact=True)
     with pytest.raises(ColumnExistsError):
-        pfx.derive(out, tr, id="pid", time="t")
+        pfx.derive(out, tr, id="pid", time="t", tables=tables)
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
 
 

@@ -48,13 +48,16 @@ def test_apply_equals_derive_on_generated_panels(data):
     case = data.draw(panels(time_kinds=kinds, index_kinds=("range", "str", "multi")))
     frame = case.frame
     chosen = []
+    tables: dict = {}
     for i, (_, entry) in enumerate(picks):
         if entry.prepare is not None:
             frame = entry.prepare(frame, case)
         chosen.append(renamed(entry.make(case), i))
+    for _, entry in picks:
+        tables.update(entry.tables_for(frame, case) or {})
     d = pfx.Derivation(*chosen, id=case.id, time=case.time)
-    expected = pfx.derive(frame, *chosen, **case.keys)
-    pd.testing.assert_frame_equal(d.apply(frame), expected)
+    expected = pfx.derive(frame, *chosen, **case.keys, tables=tables)
+    pd.testing.assert_frame_equal(d.apply(frame, tables), expected)
 
 
 def test_order_is_checked_up_front():

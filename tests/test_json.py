@@ -67,7 +67,7 @@ def transforms(draw: st.DrawFn, i: int) -> Transform:
         except (pfx.PanelError, TypeError, ValueError):
             pass  # keep a configuration the transform accepts
     fields = {f.name for f in dataclasses.fields(tr)}
-    if "names" in fields:
+    if "names" in fields and (len(tr.outputs()) > 1 or "name" not in fields):
         tr = dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(tr.outputs()))))
     elif "name" in fields:
         tr = dataclasses.replace(tr, name=f"o{i}")

@@ -106,7 +106,7 @@ def test_every_catalogued_past_only_transform_stays_past_only_on_tied_rows():
     df = dosing_day().assign(y=lambda d: d["conc"], x=1, flag=lambda d: d["kind"] == "dose", dose=1.0,
                              t=lambda d: d["hour"])
     trs = [e.build(True) for _, e in ENTRIES]
-    trs = [tr for tr in trs if tr.past_only and set(tr.inputs()) <= set(df.columns)]
+    trs = [tr for tr in trs if tr.past_only and set(tr.inputs()) <= set(df.columns) and not tr.tables()]
     for tr in trs:
         assert_past_only(df, tr, id="pid", time="hour", order="seq")
 

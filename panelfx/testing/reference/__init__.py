@@ -22,7 +22,7 @@ import importlib
 import math
 import pkgutil
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from decimal import Decimal
 from fractions import Fraction
 from typing import Any
@@ -88,6 +88,7 @@ class Subject:
     decimal: bool = True  # numeric times (and spans) compared as the decimals they print as
     whole: pd.DataFrame | None = None  # every row of the frame, for means pooled over subjects
     time: str = ""  # the time column's name (its values: ``raw(time)``)
+    tables: dict[str, pd.DataFrame] = field(default_factory=dict)  # the subject's records of each side table
 
     def raw(self, col: str) -> list[Any]:
         """Values as Python objects, None where missing."""
@@ -100,7 +101,11 @@ class Subject:
     def duration(self, later: Any, earlier: Any) -> float:
         """Elapsed time between two native times, in the panel's unit (exact, then rounded once)."""
         d = later - earlier
-        return float(d) if self.unit is None else float(Fraction(d, _NS[self.unit]))
+        if self.unit is None:
+            return float(d)
+        if isinstance(d, float):  # a time computed in floats by a reference (a day added, say)
+            return d / _NS[self.unit]
+        return float(Fraction(d, _NS[self.unit]))
 
     def native(self, v: Any) -> Any:
         """A time value (number, Timestamp, Timedelta, date) as an exact number: integer
@@ -152,10 +157,13 @@ def reference(
     time: str,
     unit: str | None = None,
     order: str | None = None,
+    tables: dict[str, pd.DataFrame] | None = None,
 ) -> pd.DataFrame:
     """What :func:`panelfx.derive` should return, computed the slow, obvious way.
 
     ``order`` orders rows sharing a time: each subject's rows are taken in (time, order).
+    ``tables`` are side tables as for :func:`panelfx.derive`: each subject sees its own
+    records of each (``Subject.tables``), found with a plain dictionary of ids.
 
     Outputs come back as float64 where every value is a number (or missing), else as
     object columns; compare with :func:`panelfx.testing.assert_matches_reference`.
@@ -171,17 +179,23 @@ def reference(
     keys = list(zip(*[frame[c].tolist() for c in id_cols]))
     for i, k in enumerate(keys):
         groups.setdefault(k, []).append(i)
+    side: dict[str, dict[Any, list[int]]] = {}
+    for name, table in (tables or {}).items():
+        side[name] = {}
+        for i, k in enumerate(zip(*[table[c].tolist() for c in id_cols])):
+            side[name].setdefault(k, []).append(i)
     for tr in transforms:
         fn = REFERENCES.get(tr.type_name)
         if fn is None:
             raise NotImplementedError(f"no reference implementation for {tr.type_name!r}")
         outs: list[list[Any]] = [[None] * len(frame) for _ in tr.outputs()]
-        for positions in groups.values():
+        for key, positions in groups.items():
             rows = work.iloc[positions]
+            mine = {name: table.iloc[side[name].get(key, [])] for name, table in (tables or {}).items()}
             times = [Subject(rows, [], unit, decimal).native(v) for v in rows[time].tolist()]
             seq = rows[order].tolist() if order is not None else [0] * len(positions)
             by = sorted(range(len(positions)), key=lambda j: (times[j], seq[j]))
-            subj = Subject(rows.iloc[by], [times[j] for j in by], unit, decimal, whole=work, time=time)
+            subj = Subject(rows.iloc[by], [times[j] for j in by], unit, decimal, whole=work, time=time, tables=mine)
             results = fn(tr, subj)
             for out, res in zip(outs, results):
                 for j, v in zip(by, res):
