@@ -182,12 +182,13 @@ class Derivation:
         return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
                           description=self.description, order=self.order, time_unit=self.time_unit)
 
-    def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
+    def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
+              threads: int | None = None) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
         derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
         already on the input is kept under ``"previous"``."""
         out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
-                     time_unit=self.time_unit, tables=tables)
+                     time_unit=self.time_unit, tables=tables, threads=threads)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
             "dictionary": _dictionary_records(self._dictionary_from_result(out)),

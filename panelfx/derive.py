@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -87,6 +88,7 @@ def derive(
     order: str | None = None,
     time_unit: str | None = None,
     tables: Mapping[str, pd.DataFrame] | None = None,
+    threads: int | None = None,
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -113,6 +115,10 @@ def derive(
     :func:`~panelfx.exposure`); each carries the id columns under the same names, and is
     validated and ordered once for all transforms.
 
+    ``threads``: transforms that do not read each other's outputs run side by side on this
+    many threads (default: the machine's cores, at most 2; 1 for strictly one).  The
+    results are the same bit for bit whatever the number.
+
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
     are needed, or an output name that already exists.
@@ -128,11 +134,12 @@ def derive(
     """
     if not isinstance(frame, pd.DataFrame):
         raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
-    # the transform list is checked before any O(n log n) work
+    # the transform list and the options are checked before any O(n log n) work
+    workers = _threads(threads)
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
     panel.tables = side_tables(panel, tables)
-    new = compute_all(panel, transforms)
+    new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
     # One concatenation (a column at a time fragments the frame); concat copies, so the input
@@ -151,31 +158,76 @@ def table_columns(tables: Mapping[str, Any] | None) -> dict[str, list[str]]:
     return {name: list(getattr(t, "columns", [])) for name, t in tables.items()}
 
 
-def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.Series]:
+def compute_all(panel: Panel, transforms: Sequence[Transform], threads: int | None = None) -> dict[str, pd.Series]:
     """Run the transforms on one panel; each output back in the caller's row order, as a Series.
 
-    Transforms return sorted-order results: arrays, or a :class:`~panelfx._columns.Take` for
-    a column whose dtype must be kept.  Each is put back in the caller's order here, once.
+    Transforms return sorted-order results: arrays, or a :class:`~panelfx._columns.Deferred`
+    (a dtype-preserving take, values from a side table).  Each is put back in the caller's
+    order here, once.  Transforms that do not read each other's outputs run side by side on
+    ``threads`` threads (numpy releases the interpreter lock in its kernels); every transform
+    is deterministic and independent of the others, so the results are the same bit for bit
+    whatever the number of threads.
     """
     frame = panel.frame
     new: dict[str, pd.Series] = {}
+    workers = _threads(threads)
+    for stage in _stages(transforms):
+        if workers > 1 and len(stage) > 1:
+            from concurrent.futures import ThreadPoolExecutor
+
+            with ThreadPoolExecutor(max_workers=min(workers, len(stage))) as pool:
+                done = list(pool.map(lambda i: _run_one(panel, transforms, i), stage))
+        else:
+            done = [_run_one(panel, transforms, i) for i in stage]
+        for outputs in done:  # registered in transform order, once the stage is complete
+            for name, v in outputs:
+                s = pd.Series(v, index=frame.index, name=name, copy=False)
+                new[name] = s
+                panel.columns.add(name, s)
+    return {name: new[name] for tr in transforms for name in tr.outputs()}
+
+
+def _run_one(panel: Panel, transforms: Sequence[Transform], i: int) -> list[tuple[str, Any]]:
+    """Transform ``i`` computed and put back in the caller's order: (name, values) per output."""
+    tr = transforms[i]
+    values = tr.compute(panel)
+    outputs = tr.outputs()
+    if len(values) != len(outputs):
+        raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
+                         f"{len(outputs)} outputs {list(outputs)}")
+    done = []
+    for name, v in zip(outputs, values):
+        if isinstance(v, Deferred):  # a Take, or values from a side table
+            v = v.resolve(panel)
+        elif isinstance(v, pd.api.extensions.ExtensionArray):  # a categorical, say: keep its dtype
+            v = v.take(panel.ordering.unsort(np.arange(len(v))))
+        else:
+            v = panel.ordering.unsort(np.asarray(v))
+        done.append((name, v))
+    return done
+
+
+def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
+    """Transforms grouped so that each reads outputs of earlier stages only (in order within a stage)."""
+    stage_of: dict[str, int] = {}
+    stages: list[list[int]] = []
     for i, tr in enumerate(transforms):
-        values = tr.compute(panel)
-        outputs = tr.outputs()
-        if len(values) != len(outputs):
-            raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
-                             f"{len(outputs)} outputs {list(outputs)}")
-        for name, v in zip(outputs, values):
-            if isinstance(v, Deferred):  # a Take, or values from a side table
-                v = v.resolve(panel)
-            elif isinstance(v, pd.api.extensions.ExtensionArray):  # a categorical, say: keep its dtype
-                v = v.take(panel.ordering.unsort(np.arange(len(v))))
-            else:
-                v = panel.ordering.unsort(np.asarray(v))
-            s = pd.Series(v, index=frame.index, name=name, copy=False)
-            new[name] = s
-            panel.columns.add(name, s)
-    return new
+        k = max((stage_of[c] + 1 for c in tr.inputs() if c in stage_of), default=0)
+        if k == len(stages):
+            stages.append([])
+        stages[k].append(i)
+        for out in tr.outputs():
+            stage_of[out] = k
+    return stages
+
+
+def _threads(threads: int | None) -> int:
+    """Threads to use: ``None`` for the machine's cores, at most 2 (what the kernels gain from); 1 for one."""
+    if threads is None:
+        return min(2, os.cpu_count() or 1)
+    if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
+        raise OptionError(f"threads must be a positive integer or None, got {threads!r}")
+    return threads
 
 
 __all__ = ["derive"]
