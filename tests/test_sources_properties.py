@@ -19,6 +19,7 @@ TRANSFORMS = [
     pfx.rolling("y", "max", occasions=3, name="j"), pfx.cumulative("y", "step", where="ok", name="k"),
     pfx.cumulative("y", where="ok", name="l"), pfx.events_so_far("ev", where="ok", name="m"),
     pfx.time_since("ev", name="n"), pfx.change_from_previous("y", "rate", name="o"), pfx.occasion(name="p"),
+    pfx.carry_forward("y", where="ok", max_span=2, name="q"),
 ]
 
 

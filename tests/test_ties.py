@@ -158,10 +158,13 @@ def test_lag_by_time_measures_the_age_from_the_measurement():
 def test_where_on_the_other_transforms():
     df = pd.DataFrame({"pid": 1, "day": [0, 1, 2, 3], "y": [9.0, 1.0, 7.0, 2.0], "post": [False, True, True, True],
                        "ev": [True, False, True, True]})
-    out = pfx.derive(df, pfx.baseline("y", where="post"), pfx.rolling("y", "max", where="post"),
+    out = pfx.derive(df, pfx.carry_forward("y", where="post", flag=True),
+                     pfx.baseline("y", where="post"), pfx.rolling("y", "max", where="post"),
                      pfx.cumulative("y", where="post"), pfx.events_so_far("ev", where="post"),
                      pfx.time_since("ev", where="post"), id="pid", time="day")
     assert out["y_baseline"].tolist() == [1.0] * 4
+    # the 9.0 at day 0 is no source: missing there (nothing earlier qualifies), own values after
+    np.testing.assert_array_equal(out["y_filled"], [np.nan, 1.0, 7.0, 2.0])
     np.testing.assert_array_equal(out["y_max_sofar"], [np.nan, 1.0, 7.0, 7.0])
     assert out["y_cum"].tolist() == [0.0, 1.0, 8.0, 10.0]
     assert out["ev_count"].tolist() == [0, 0, 1, 2]
