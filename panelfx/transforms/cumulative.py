@@ -80,7 +80,10 @@ class Cumulative(Transform):
             if self.missing == "propagate":
                 out[K.last_index_upto(s, bad) >= 0] = np.nan
             return [out]
-        prev = K.shift_index(s, 1)
+        if allowed is None:
+            prev = K.shift_index(s, 1)
+        else:  # intervals join consecutive source rows; the other rows start none
+            prev = np.where(allowed, K.at_previous(s, K.last_index_upto(s, allowed)), -1)
         has_prev = prev >= 0
         pi = np.maximum(prev, 0)
         breaks = np.zeros(panel.n, dtype=bool)
@@ -138,9 +141,10 @@ def cumulative(
     than it: the occasion after the gap starts again as if it were the subject's first
     (sum = its own value, integrals = 0), and the interval across the gap adds nothing.
 
-    ``where`` (a true/false column): only occasions where it is true contribute (their
-    value, or the interval it starts for ``"step"``); the others add 0, as a value of 0
-    would, and every row still receives the running total.
+    ``where`` (a true/false column): only occasions where it is true are sources: a sum
+    adds their values, and the integrals run along the curve through them alone (an
+    interval joins two consecutive such occasions, whatever lies between); the other rows
+    add nothing and still receive the running total.
 
     Missing values (``missing=``): ``"skip"`` (default) - a missing value contributes
     nothing: it adds 0 to a sum, and every interval it bounds (the one after it for
