@@ -227,6 +227,6 @@ def test_theophylline_dose_and_pre_dose_sample_at_time_zero():
     post = out[out["is_sample"]].groupby("pid").nth(1)
     pre = out[out["is_sample"]].groupby("pid").nth(0)
     np.testing.assert_array_equal(post["prev_conc"].to_numpy(), pre["conc"].to_numpy())
-    for pid, g in out[out["is_sample"]].groupby("pid"):
+    for _, g in out[out["is_sample"]].groupby("pid"):
         assert g["auc"].iloc[-1] == pytest.approx(np.trapezoid(g["conc"], g["hour"]), rel=1e-12)
     assert_past_only(df, *[tr for tr in trs if tr.past_only], id="pid", time="hour", order="seq")
