@@ -18,10 +18,12 @@ from ._transform import Transform
 from .check import check
 from .derivation import Derivation, DerivationFileError
 from .derive import derive
+from .episodes import episodes
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
     DuplicateOccasionError,
+    FollowUpError,
     MissingColumnError,
     NotConstantError,
     NullKeyError,
@@ -29,7 +31,10 @@ from .errors import (
     PanelError,
     PrecisionError,
     TimeTypeError,
+    UnknownSubjectError,
 )
+from .person_time import person_time
+from .snapshot import snapshot
 from .summary import subject_summary
 from .transforms.baseline import baseline
 from .transforms.carry_forward import carry_forward
@@ -69,6 +74,10 @@ __all__ = [
     "gap",
     "rolling",
     "subject_summary",
+    # interval data
+    "episodes",
+    "person_time",
+    "snapshot",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -81,4 +90,6 @@ __all__ = [
     "NotConstantError",
     "OptionError",
     "DerivationFileError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]

@@ -23,6 +23,8 @@ __all__ = [
     "ColumnExistsError",
     "NotConstantError",
     "OptionError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]
 
 #: How many offending ids an error message shows.
@@ -90,6 +92,14 @@ class NotConstantError(PanelError, ValueError):
 
 class OptionError(PanelError, ValueError):
     """A transform or function option has a value outside its rules."""
+
+
+class FollowUpError(PanelError, ValueError):
+    """Follow-up is not defined: a missing entry, exit or event flag, or an exit at or before entry."""
+
+
+class UnknownSubjectError(PanelError, ValueError):
+    """A side table names subjects that are not in the frame."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:
