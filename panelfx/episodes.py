@@ -77,7 +77,8 @@ def episodes(
     Rules, in the order they apply:
 
     - each occasion strictly inside follow-up starts a new interval carrying the values
-      measured there, **held until the next occasion**; the value on the first interval is
+      measured there, **held until the next occasion** (with no covariate it still starts
+      one, which ``merge`` joins back); the value on the first interval is
       the one measured at the last occasion at or before entry (missing if there is none);
       occasions at or after exit are ignored;
     - **reverse-causation guard**: a value measured at an event time never describes the
@@ -456,6 +457,8 @@ def _build(spec: _Spec) -> pd.DataFrame:
         if key not in groups:
             st = streams[key[0]]
             groups[key] = st.t + _as_ticks(clock.span(key[1], "lag"), st.t) if key[1] else st.t
+    if not any(spec.source[c] is None for c in spec.covariates):
+        groups[(None, 0)] = t  # no covariate from the frame: its occasions still open intervals
     shifted = _shift_ties(spec, panel, clock, groups, streams, E, X, ev_grp, ev_t)
 
     # ---- cut points: entry, exit, changes, events, splits
@@ -500,8 +503,8 @@ def _build(spec: _Spec) -> pd.DataFrame:
         col_codes, na = _codes(st.frame[c], st.pos)
         rows = np.flatnonzero(~na) if spec.missing == "carry" else np.arange(len(st.grp))
         at = last_at_or_before(st.grp[rows], eff[rows], i_grp, i_start)
-        src[c] = np.where(at >= 0, rows[np.maximum(at, 0)], -1)
-        codes.append(np.where(src[c] >= 0, col_codes[np.maximum(src[c], 0)], -1))
+        src[c] = _take(rows, at, -1)
+        codes.append(_take(col_codes, src[c], -1))
     band_idx = [(cuts[i_grp] <= i_start[:, None]).sum(axis=1) for cuts in band_cuts]
     frame_src = [src[c] for c in spec.covariates if spec.source[c] is None]
     if frame_src:
@@ -533,13 +536,13 @@ def _build(spec: _Spec) -> pd.DataFrame:
     out["event"] = o_event.astype(np.int64)
     if spec.gap_time:
         at = last_at_or_before(ev_grp, ev_t, o_grp, o_start)
-        origin = np.where(at >= 0, ev_t[np.maximum(at, 0)], E[o_grp])
+        origin = _take(ev_t, at, E[o_grp])
         out["gap_start"] = clock.duration(o_start - origin)
         out["gap_stop"] = clock.duration(o_stop - origin)
     for c in spec.covariates:
         st = streams[spec.source[c]]
         rows = src[c][run]
-        taken = np.where(rows >= 0, st.pos[np.maximum(rows, 0)], -1)
+        taken = _take(st.pos, rows, -1)
         out[c] = pd.api.extensions.take(_values(st.frame[c]), taken, allow_fill=True)
     for b, idx in zip(spec.bands, band_idx):
         labels = _band_labels(b.bands)
@@ -550,6 +553,13 @@ def _build(spec: _Spec) -> pd.DataFrame:
     rs = row_src[run]
     out["row"] = _labels(f.index, np.where(rs >= 0, panel.ordering.positions(np.maximum(rs, 0)), -1))
     return pd.DataFrame(out)
+
+
+def _take(values: np.ndarray, index: np.ndarray, fill: Any) -> np.ndarray:
+    """``values[index]`` with ``fill`` where the index is -1 (``values`` may be empty)."""
+    if len(values) == 0:
+        return np.broadcast_to(np.asarray(fill, dtype=values.dtype), index.shape).copy()
+    return np.where(index >= 0, values[np.maximum(index, 0)], fill)
 
 
 def _as_ticks(value: int | float, like: np.ndarray) -> Any:
@@ -656,7 +666,8 @@ def _shift_ties(spec: _Spec, panel: Panel, clock: Clock, groups: dict[tuple[str 
     if spec.tie_shift is None or not len(ev_t):
         return groups
     shift = _as_ticks(clock.span(spec.tie_shift, "tie_shift"), ev_t)
-    # every cut before the shift: entry, changes, events (splits are fixed times: checked too)
+    # the cuts a moved change may not reach: entry, events and the other changes (a split in
+    # between reorders nothing: the new value then holds on both sides of it)
     cut_g = [np.arange(len(E)), ev_grp]
     cut_t = [E, ev_t]
     for key, eff in groups.items():
