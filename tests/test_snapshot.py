@@ -53,12 +53,20 @@ def equal(got: pd.DataFrame, want: list[dict]) -> None:
                 assert a == b, (col, g, w)
 
 
-def landmarks_for(frame, time, draws):
+def landmarks_for(frame, time, draws, data):
+    """Landmarks from the draws, and one at an occasion's own time (the tie that matters)."""
     t = frame[time]
     if pd.api.types.is_numeric_dtype(t.dtype):
-        return [float(v) if pd.api.types.is_float_dtype(t.dtype) else int(v) for v in draws]
-    origin = pd.Timestamp("2024-01-01", tz=t.dt.tz)
-    return [origin + pd.Timedelta(days=int(v)) for v in draws]
+        out = [float(v) if pd.api.types.is_float_dtype(t.dtype) else int(v) for v in draws]
+    else:
+        origin = pd.Timestamp("2024-01-01", tz=t.dt.tz)
+        out = [origin + pd.Timedelta(days=int(v)) for v in draws]
+    if len(frame):
+        tied = t.iloc[data.draw(st.integers(0, len(frame) - 1))]
+        tied = tied.item() if isinstance(tied, np.generic) else tied
+        if tied not in out:
+            out.append(tied)
+    return out
 
 
 @settings(max_examples=40, deadline=None)
@@ -66,7 +74,7 @@ def landmarks_for(frame, time, draws):
        draws=st.lists(st.integers(-25, 120), min_size=1, max_size=3, unique=True), data=st.data())
 def test_past_only_snapshot_equals_the_loop(case, draws, data):
     steps = data.draw(st.lists(st.sampled_from(PAST), min_size=1, max_size=3, unique_by=lambda t: t.type_name))
-    lms = landmarks_for(case.frame, case.time, draws)
+    lms = landmarks_for(case.frame, case.time, draws, data)
     got = pfx.snapshot(case.frame, steps, at=lms, id=case.id, time=case.time)
     equal(got, loop(case.frame, steps, lms, case.id, case.time))
 
@@ -77,7 +85,7 @@ def test_past_only_snapshot_equals_the_loop(case, draws, data):
 def test_snapshot_with_future_transforms_equals_the_loop(case, draws, data):
     steps = data.draw(st.lists(st.sampled_from(FUTURE + PAST), min_size=1, max_size=3,
                                unique_by=lambda t: t.type_name))
-    lms = landmarks_for(case.frame, case.time, draws)
+    lms = landmarks_for(case.frame, case.time, draws, data)
     got = pfx.snapshot(case.frame, steps, at=lms, id=case.id, time=case.time, allow_future=True)
     equal(got, loop(case.frame, steps, lms, case.id, case.time))
 
