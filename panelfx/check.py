@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ._interval_check import interval_findings
 from ._panel import Panel, as_id_list, require_columns, time_kind
 from .errors import OptionError
 
@@ -23,6 +24,7 @@ PROBLEMS = {
     "early": "warning",
     "late": "warning",
     "extra": "warning",
+    "interval_data": "warning",
     "single_occasion": "note",
     "not_in_order": "note",
 }
@@ -55,6 +57,10 @@ def check(
       ``time`` is the planned time), ``extra`` for a second visit matched to the same
       scheduled occasion.  Scheduled occasions after a subject's last visit are not
       reported: the end of planned follow-up is not known here.
+    - ``interval_data``: another column of times looks like the stop of (start, stop]
+      intervals that begin at ``time`` (never before it, equal to the next row's time on most
+      rows): events happen at the stop, so ``time=start`` is wrong for transforms of an event
+      flag (warning, once per such column);
     - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
       when rows are not grouped by subject in time order; harmless for panelfx).
 
@@ -105,6 +111,8 @@ def check(
         parts.extend(_schedule(frame, panel, positions, id_cols, time, spacing, tolerance))
     elif tolerance is not None:
         raise OptionError("tolerance= needs spacing= (the planned interval between occasions)")
+
+    parts.extend(interval_findings(frame, panel, positions, id_cols, time, _rows))
 
     if notes:
         single = np.flatnonzero(panel.subjects.lengths == 1) if panel.n else np.array([], dtype=int)
