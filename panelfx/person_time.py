@@ -119,6 +119,9 @@ def _lengths(frame: pd.DataFrame, start: str, stop: str, unit: Any) -> np.ndarra
             unit = "D"
         if not isinstance(unit, str) or unit not in UNITS_NS:
             raise OptionError(f"unit must be one of {sorted(UNITS_NS)} for datetime times, got {unit!r}")
+        if (getattr(s.dtype, "tz", None) is None) != (getattr(e.dtype, "tz", None) is None):
+            raise TimeTypeError(f"columns {start!r} and {stop!r} mix naive and time-zone-aware datetimes",
+                                column=stop)
         ra, rb = _ns(s), _ns(e)
         missing = (ra == np.iinfo(np.int64).min) | (rb == np.iinfo(np.int64).min)
         d = (rb - ra).astype(np.float64)  # int64 nanoseconds: exact below 2**53 ns (104 days), then rounded once

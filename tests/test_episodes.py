@@ -156,6 +156,15 @@ def test_lexis_split_on_age_at_entry_with_numeric_days():
          [(1, 0.0, 547.875, "<=40"), (1, 547.875, 1000.0, ">40"), (2, 0.0, 300.0, "<=40")])
 
 
+def test_lexis_split_on_age_at_entry_with_datetimes():
+    df = pd.DataFrame({"pid": [1], "day": [pd.Timestamp("2020-01-01")], "end": [pd.Timestamp("2023-01-01")],
+                       "age0": [49.5]})
+    out = ep(df, split_at={"at_entry": "age0", "bands": [50], "unit": "Y", "name": "age"})
+    turns_50 = pd.Timestamp("2020-01-01") + pd.Timedelta(days=0.5 * 365.25)
+    assert rows(out, "start", "stop", "age") == [(pd.Timestamp("2020-01-01"), turns_50, "<=50"),
+                                                 (turns_50, pd.Timestamp("2023-01-01"), ">50")]
+
+
 def test_split_at_fixed_times_and_at_every_event_time():
     df = pd.DataFrame({"pid": [1, 2], "day": [0, 0], "end": [10, 6], "d": [1, 1]})
     same(rows(ep(df, event="d", split_at="events"), "pid", "start", "stop", "event"),

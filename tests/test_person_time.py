@@ -136,9 +136,11 @@ def test_bad_rows(change, match):
 
 @pytest.mark.parametrize("kw, match", [
     ({"per": 0}, "per must be"), ({"alpha": 1}, "alpha must be"), ({"unit": "Y"}, "positive number"),
-    ({"by": "nope"}, "not in the frame"), ({"by": ["rate"]}, "output column"), ({"event": 3}, "event must be"),
+    ({"by": "nope"}, "not in the frame"), ({"start": "when"}, "mix naive and time-zone-aware"), ({"by": ["rate"]}, "output column"), ({"event": 3}, "event must be"),
 ])
 def test_bad_options(kw, match):
     ep = pd.DataFrame({"start": [0.0], "stop": [1.0], "event": [0], "rate": [1]})
+    if kw.get("start") == "when":
+        ep = ep.assign(when=pd.Timestamp("2024-01-01", tz="UTC"), stop=pd.Timestamp("2024-02-01"))
     with pytest.raises(pfx.PanelError, match=match):
         pfx.person_time(ep, **kw)
