@@ -239,20 +239,29 @@ def last_at_or_before(row_grp: np.ndarray, row_t: np.ndarray, q_grp: np.ndarray,
                       *, strict: bool = False) -> np.ndarray:
     """Per query: the last row with the query's group and time at or before the query's time
     (``strict``: before it), else -1.  Rows must be sorted by (group, time); groups are
-    non-negative integers.  Exact on int64 and float64 times: times are replaced by their
-    dense ranks among rows and queries, then one int64 key is searched."""
+    non-negative integers.  Exact on int64 and float64 times: one int64 key (subject, then
+    time as an offset, or as its dense rank among rows and queries) is searched."""
     if len(q_t) == 0:
         return np.zeros(0, dtype=np.int64)
     if len(row_t) == 0:
         return np.full(len(q_t), -1, dtype=np.int64)
-    uniq, inv = np.unique(np.concatenate([row_t, q_t]), return_inverse=True)
-    inv = inv.reshape(-1).astype(np.int64)
-    width = len(uniq) + 1
     groups = int(max(row_grp.max(), q_grp.max())) + 1
-    if width.bit_length() + groups.bit_length() > 62:  # pragma: no cover - beyond any real table
-        raise OptionError("too many distinct times and subjects for one search key")
-    row_key = row_grp.astype(np.int64) * width + inv[: len(row_t)]
-    q_key = q_grp.astype(np.int64) * width + inv[len(row_t):]
+    row_key = q_key = None
+    if row_t.dtype.kind == "i" and q_t.dtype.kind == "i":
+        # integer ticks: offsets from the smallest time, when subject and offset fit one int64
+        lo = min(int(row_t.min()), int(q_t.min()))
+        width = max(int(row_t.max()), int(q_t.max())) - lo + 1
+        if width.bit_length() + groups.bit_length() <= 62:
+            row_key = row_grp.astype(np.int64) * width + (row_t - lo)
+            q_key = q_grp.astype(np.int64) * width + (q_t - lo)
+    if row_key is None or q_key is None:  # else dense ranks of the times
+        uniq, inv = np.unique(np.concatenate([row_t, q_t]), return_inverse=True)
+        inv = inv.reshape(-1).astype(np.int64)
+        width = len(uniq) + 1
+        if width.bit_length() + groups.bit_length() > 62:  # pragma: no cover - beyond any real table
+            raise OptionError("too many distinct times and subjects for one search key")
+        row_key = row_grp.astype(np.int64) * width + inv[: len(row_t)]
+        q_key = q_grp.astype(np.int64) * width + inv[len(row_t):]
     at = np.searchsorted(row_key, q_key, side="left" if strict else "right") - 1
     ok = at >= 0
     ok[ok] = row_grp[at[ok]] == q_grp[ok]

@@ -450,3 +450,37 @@ def test_datetimes_give_the_same_intervals_as_day_numbers(case, data):
     pd.testing.assert_series_equal(when["start"], origin + pd.to_timedelta(days["start"], unit="D"),
                                    check_dtype=False, check_names=False)
     pd.testing.assert_frame_equal(when.drop(columns=["start", "stop"]), days.drop(columns=["start", "stop"]))
+
+
+# ---------------------------------------------------------------------------- the as-of search
+@pytest.mark.parametrize("kind", ["small integers", "huge integers", "floats"])
+def test_last_at_or_before_on_every_search_path(kind):
+    """Offsets for integer ticks, dense ranks when they do not fit or for binary floats: both against a loop."""
+    from panelfx._clock import last_at_or_before
+
+    rng = np.random.default_rng(5)
+    n, q = 300, 200
+    grp = np.sort(rng.integers(0, 20, n))
+    if kind == "small integers":
+        t = rng.integers(-50, 50, n)
+    elif kind == "huge integers":
+        t = rng.choice(np.array([-(2**62), -5, 0, 7, 2**62], dtype=np.int64), n)
+    else:
+        t = rng.choice(np.array([-1 / 3, 0.1, 0.2, 0.30000000000000004, 2.5]), n)
+    order = np.lexsort((t, grp))
+    grp, t = grp[order], t[order]
+    qg = rng.integers(0, 21, q)
+    qt = t[rng.integers(0, n, q)] if kind != "small integers" else rng.integers(-60, 60, q)
+    for strict in (False, True):
+        got = last_at_or_before(grp, t, qg, qt, strict=strict)
+        want = [max([j for j in range(n) if grp[j] == g and (t[j] < v if strict else t[j] <= v)], default=-1)
+                for g, v in zip(qg, qt)]
+        assert got.tolist() == want
+
+
+def test_binary_float_times_fall_back_to_float_comparisons():
+    """Times that are not short decimals (thirds) are compared as floats; ties are still exact ties."""
+    df = pd.DataFrame({"pid": 1, "day": [0.0, 1 / 3, 2 / 3], "x": [0, 1, 2], "end": 1.0})
+    events = pd.DataFrame({"pid": [1], "day": [2 / 3]})
+    out = ep(df, covariates=["x"], events=events)
+    same(rows(out, "start", "stop", "event", "x"), [(0.0, 1 / 3, 0, 0), (1 / 3, 2 / 3, 1, 1), (2 / 3, 1.0, 0, 2)])
