@@ -95,7 +95,8 @@ class OptionError(PanelError, ValueError):
 
 
 class FollowUpError(PanelError, ValueError):
-    """Follow-up is not defined: a missing entry, exit or event flag, or an exit at or before entry."""
+    """Follow-up or person-time is not defined: a missing entry, exit, event flag, start or stop, an
+    exit at or before entry, a stop at or before start, or an event count that is not a whole number."""
 
 
 class UnknownSubjectError(PanelError, ValueError):

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pandas as pd
+import pytest
 
 import panelfx as pfx
 from panelfx.demo import cohort
@@ -40,3 +41,12 @@ def test_ordinary_panels_are_not_flagged():
     demo = cohort(60, seed=3)
     assert "interval_data" not in pfx.check(demo, id=["site", "subject"], time="visit_date")["problem"].tolist()
     assert "interval_data" not in pfx.check(demo, id=["site", "subject"], time="day")["problem"].tolist()
+
+
+def test_assert_panel_structure_fails_on_the_warning():
+    from panelfx.testing import assert_panel_structure
+
+    data = pd.read_csv(STANFORD)
+    with pytest.raises(AssertionError, match="interval_data: 1"):
+        assert_panel_structure(data, id="id", time="start")
+    assert_panel_structure(data, id="id", time="stop")
