@@ -88,7 +88,7 @@ def episodes(
       describes the end of the event's interval: the convention of some published data
       sets, to be used only when the change is known to have come first that day;
     - ``events``: recurrent events inside follow-up, each closing an interval: a true/false
-      column of the frame (an event at that occasion's time), a side table (a DataFrame, or
+      column of the frame (an event at that occasion's time; a missing flag is no event), a side table (a DataFrame, or
       the name of one in ``tables``) with the id columns and a column of event times (named
       like ``time``, or its only other column).  Events outside (entry, exit] are left out;
       two events of a subject at one time are an error.  ``gap_time=True`` adds
@@ -126,7 +126,8 @@ def episodes(
     columns, ``episode`` (1, 2, ... within subject) and ``row``: the label of the latest
     frame row any covariate's value comes from (the last occasion at or before the start
     when there are no covariates; missing when none).  Never start >= stop.  Past-only by
-    construction: each interval's values come from occasions at or before its start.
+    construction: each interval's values come from occasions at or before its start (but
+    for the changes that ``tie_shift`` moves earlier, by that span).
 
     >>> import pandas as pd, panelfx as pfx
     >>> visits = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 10, 20, 0, 8],
