@@ -11,7 +11,8 @@ import numpy as np
 from .. import _kernels as K
 from .._columns import Take
 from .._panel import Panel
-from .._transform import Transform, check_column_name, check_int, check_name
+from .._transform import Transform, check_bool, check_column_name, check_int, check_name
+from ._fill import fill_flag, flag_words
 from ._spans import check_span, span_words
 
 
@@ -24,10 +25,12 @@ class CarryForward(Transform):
     limit: int | None = None
     max_span: str | float | None = None
     name: str | None = None
+    flag: bool = False
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
         check_name(self.name)
+        check_bool("flag", self.flag)
         if self.limit is not None:
             check_int("limit", self.limit, minimum=1)
         if self.max_span is not None:
@@ -37,7 +40,8 @@ class CarryForward(Transform):
         return (self.col,)
 
     def outputs(self) -> tuple[str, ...]:
-        return (self.name or f"{self.col}_filled",)
+        out = self.name or f"{self.col}_filled"
+        return (out, f"{out}_flag") if self.flag else (out,)
 
     @property
     def past_only(self) -> bool:
@@ -49,6 +53,8 @@ class CarryForward(Transform):
             words += f", carried at most {self.limit} occasion(s)"
         if self.max_span is not None:
             words += f", carried at most {span_words(self.max_span)}"
+        if self.flag:
+            words += flag_words("LOCF", "last observation carried forward")
         return words
 
     def compute(self, panel: Panel) -> Sequence[Any]:
@@ -60,7 +66,10 @@ class CarryForward(Transform):
             # at most max_span old: the source lies at or after t - max_span
             oldest = panel.axis.back(panel.span(self.max_span, "max_span"), strict=False)
             ok &= panel.axis.key[np.maximum(src, 0)] >= oldest
-        return [Take(self.col, np.where(ok, src, -1))]
+        rows = np.where(ok, src, -1)
+        if self.flag:
+            return [Take(self.col, rows), fill_flag((rows >= 0) & (rows != np.arange(panel.n)), "LOCF")]
+        return [Take(self.col, rows)]
 
 
 def carry_forward(
@@ -69,6 +78,7 @@ def carry_forward(
     limit: int | None = None,
     max_span: str | float | None = None,
     name: str | None = None,
+    flag: bool = False,
 ) -> CarryForward:
     """``col`` with each missing value replaced by the subject's last earlier non-missing value.
 
@@ -80,6 +90,11 @@ def carry_forward(
     Missing values: missing before the subject's first non-missing value and beyond the
     limits.  Never carried from one subject to the next.  Works on any dtype (numbers,
     text, categories) and keeps it.  Past-only.  Default name: ``<col>_filled``.
+
+    ``flag=True`` adds ``<name>_flag``, a categorical holding "LOCF" (last observation
+    carried forward) where the value was carried and missing elsewhere, so that filled
+    values stay visible.  See also :func:`panelfx.carry_baseline` and
+    :func:`panelfx.carry_worst` for sensitivity analyses.
 
     >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 30, 60, 200, 0],
@@ -93,4 +108,4 @@ def carry_forward(
     3    1  200   NaN        27.1     NaN
     4    2    0  31.0        31.0    31.0
     """
-    return CarryForward(col=col, limit=limit, max_span=max_span, name=name)
+    return CarryForward(col=col, limit=limit, max_span=max_span, name=name, flag=flag)

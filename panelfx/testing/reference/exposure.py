@@ -6,11 +6,13 @@ import math
 from typing import Any
 
 from . import Subject, register
+from .history import allowed
 
 
 @register("cumulative")
 def cumulative(tr: Any, s: Subject) -> list[list[Any]]:
-    y = s.values(tr.col)
+    ok = allowed(tr, s)
+    y = [v if ok[j] else 0.0 for j, v in enumerate(s.values(tr.col))]  # where=: others add nothing
     out: list[float] = []
     total = 0.0
     broken = False  # missing="propagate": a needed value was missing since the last (re)start

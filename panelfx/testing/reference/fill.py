@@ -10,7 +10,8 @@ from . import Subject, register
 @register("carry_forward")
 def carry_forward(tr: Any, s: Subject) -> list[list[Any]]:
     raw = s.raw(tr.col)
-    out = []
+    out: list[Any] = []
+    flag: list[Any] = []
     for i in range(len(raw)):
         found = None
         for j in range(i, -1, -1):
@@ -22,4 +23,5 @@ def carry_forward(tr: Any, s: Subject) -> list[list[Any]]:
         if found is not None and tr.max_span is not None and s.times[i] - s.times[found] > s.span(tr.max_span):
             found = None
         out.append(None if found is None else raw[found])
-    return [out]
+        flag.append("LOCF" if found is not None and found != i else None)
+    return [out, flag] if getattr(tr, "flag", False) else [out]
