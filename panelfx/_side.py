@@ -1,8 +1,9 @@
-"""Side tables (events, other measurement streams) matched to the subjects of a panel.
+"""Side tables of episodes (event times, other measurement streams) on the episodes' clock.
 
-A side table holds the panel's id columns and a column of times; its rows are matched to
-the frame's subjects (numbered as :class:`~panelfx._panel.Panel` numbers them: in order
-of first appearance in the frame) and put in (subject, time) order once.
+A side table holds the panel's id columns and a column of times.  Its records are matched
+to the panel's subjects by :class:`~panelfx._tables.SideTable` (the same validation as
+``derive(..., tables=)``) and put in (subject, time) order on the exact clock that
+:func:`panelfx.episodes` compares every time on.
 """
 
 from __future__ import annotations
@@ -14,8 +15,8 @@ import numpy as np
 import pandas as pd
 
 from ._clock import Clock
-from ._order import check_null_ids, subject_codes
-from ._panel import require_columns
+from ._panel import Panel, require_columns
+from ._tables import SideTable
 from .errors import DuplicateOccasionError, MissingColumnError, NullKeyError, OptionError, rows_message
 
 __all__ = ["SideRows", "side_rows", "side_time_column"]
@@ -48,24 +49,21 @@ def side_time_column(table: pd.DataFrame, id_cols: Sequence[str], time: str, wha
                              column=time, count=1)
 
 
-def side_rows(table: pd.DataFrame, tcol: str, frame: pd.DataFrame, id_cols: Sequence[str], n_subjects: int,
-              clock: Clock, what: str, *, unique: bool = True) -> SideRows:
-    """Match ``table`` to the frame's subjects and sort it; missing ids or times are errors,
+def side_rows(table: pd.DataFrame, tcol: str, panel: Panel, clock: Clock, what: str, *,
+              unique: bool = True) -> SideRows:
+    """Match ``table`` to the panel's subjects and sort it; missing ids or times are errors,
     and so are repeated (subject, time) pairs when ``unique``."""
     empty = np.zeros(0, dtype=np.int64)
     if len(table) == 0:
         return SideRows(table, empty, clock.read(table[tcol])[0], empty, empty)
-    check_null_ids(table, id_cols)
+    codes = SideTable(what, table, panel).psub  # panel subject of each record, -1 when absent
     t, missing = clock.read(table[tcol])
     if missing.any():
         bad = np.flatnonzero(missing)
         labels = list(table.index[bad[:5]])
         raise NullKeyError(rows_message(f"{what}: missing time", tcol, len(bad), labels, noun="row labels"),
                            column=tcol, count=len(bad), ids=labels)
-    keys = pd.concat([frame[list(id_cols)].reset_index(drop=True), table[list(id_cols)].reset_index(drop=True)],
-                     ignore_index=True)
-    codes = subject_codes(keys, id_cols)[len(frame):]
-    known = codes < n_subjects
+    known = codes >= 0
     unknown = np.flatnonzero(~known)
     rows = np.flatnonzero(known)
     order = rows[np.lexsort((t[rows], codes[rows]))]
@@ -74,7 +72,7 @@ def side_rows(table: pd.DataFrame, tcol: str, frame: pd.DataFrame, id_cols: Sequ
         rep = (grp[1:] == grp[:-1]) & (ts[1:] == ts[:-1])
         if rep.any():
             where = order[1:][rep]
-            ids = _ids(table, id_cols, where)
+            ids = _ids(table, panel.id_cols, where)
             raise DuplicateOccasionError(rows_message(f"{what}: the same (id, time) more than once", tcol,
                                                       int(rep.sum()), ids), column=tcol, count=int(rep.sum()),
                                          ids=ids)

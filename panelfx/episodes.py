@@ -450,7 +450,7 @@ def _build(spec: _Spec) -> pd.DataFrame:
     streams: dict[str | None, _Stream] = {None: _Stream(f, s.grp, t, panel.ordering.positions(np.arange(panel.n)),
                                                          True)}
     for name in spec.table_time:
-        side: SideRows = side_rows(spec.tables[name], spec.time, f, spec.id_cols, m, clock, f"table {name!r}")
+        side: SideRows = side_rows(spec.tables[name], spec.time, panel, clock, f"table {name!r}")
         streams[name] = _Stream(spec.tables[name], side.grp, side.t, side.pos, False)
     groups: dict[tuple[str | None, Any], np.ndarray] = {}
     for c in spec.covariates:
@@ -635,7 +635,7 @@ def _event_times(spec: _Spec, panel: Panel, clock: Clock, t: np.ndarray, E: np.n
         true, _ = panel.columns.flags(spec.events)  # a missing flag is no event, as in time_since
         g, v = s.grp[true], t[true]
     elif table is not None and tcol is not None:
-        rows = side_rows(table, tcol, spec.frame, spec.id_cols, s.count, clock, "events table")
+        rows = side_rows(table, tcol, panel, clock, "events table")
         if len(rows.unknown):
             ids = [table[c].iloc[rows.unknown[:5]].tolist() for c in spec.id_cols]
             shown = ids[0] if len(ids) == 1 else list(zip(*ids))

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import inspect
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -11,10 +10,10 @@ import pandas as pd
 
 from ._clock import Clock, last_at_or_before
 from ._panel import Panel, as_id_list, require_columns
-from ._side import side_rows, side_time_column
+from ._tables import SideTable
 from ._transform import Transform
 from .derivation import Derivation
-from .derive import derive, plan
+from .derive import derive, plan, table_columns
 from .errors import ColumnExistsError, NotConstantError, OptionError, rows_message
 
 __all__ = ["snapshot"]
@@ -28,20 +27,25 @@ def snapshot(
     id: str | Sequence[str] | None = None,
     time: str | None = None,
     unit: str | None = None,
+    order: str | None = None,
+    time_unit: str | None = None,
     tables: Mapping[str, pd.DataFrame] | None = None,
     allow_future: bool = False,
     name: str = "landmark",
 ) -> pd.DataFrame:
     """For each subject and landmark time: the derived features as of that time, from rows at or before it.
 
-    ``steps`` is a :class:`~panelfx.Derivation` (its ``id``, ``time`` and ``unit`` are
-    used) or transforms (then ``id`` and ``time`` are required).  ``at`` is a column of
+    ``steps`` is a :class:`~panelfx.Derivation` (its ``id``, ``time``, ``unit``, ``order``
+    and ``time_unit`` are used) or transforms (then ``id`` and ``time`` are required;
+    ``unit``, ``order``, ``time_unit`` and ``tables`` as in :func:`~panelfx.derive`).  ``at`` is a column of
     the frame holding one landmark per subject (constant within subject; a subject whose
     landmark is missing gets no row), or a list of times given to every subject.
 
     The result is what this loop gives, without running it: for each subject and landmark
-    L, keep the subject's rows with time at or before L (and the side tables' rows at or
-    before L), derive, and keep the last row.  One row per subject and landmark, subjects
+    L, keep the subject's rows with time at or before L (and the side-table records whose
+    times, as the transforms read them, are at or before L, with end times beyond L brought
+    back to L, as :func:`~panelfx.testing.assert_past_only` cuts them), derive, and keep the
+    last row (the last in (time, ``order``) among tied rows).  One row per subject and landmark, subjects
     in order of first appearance, landmarks in the order given: the id columns, the
     landmark (named like ``at``, or ``name`` for a list), then the frame's other columns
     and the derived ones, from the subject's last occasion at or before the landmark; all
@@ -66,16 +70,15 @@ def snapshot(
     2    2        40    0  128.0       NaN         1
     3    2        90   45  131.0       3.0         2
     """
-    transforms, id_cols, time_col, unit = _steps(steps, id, time, unit)
+    transforms, id_cols, time_col, keys = _steps(steps, id, time, {"unit": unit, "order": order,
+                                                                   "time_unit": time_unit})
     if not isinstance(frame, pd.DataFrame):
         raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     if not isinstance(allow_future, bool):
         raise OptionError(f"allow_future must be True or False, got {allow_future!r}")
     if not isinstance(name, str) or not name:
         raise OptionError(f"name must be a column name, got {name!r}")
-    if tables is not None and "tables" not in inspect.signature(derive).parameters:
-        raise OptionError("tables= needs side-table support in derive, which this panelfx does not have yet")
-    plan(list(frame.columns), transforms, id_cols, time_col)  # the checks derive makes, before any work
+    plan(list(frame.columns), transforms, id_cols, time_col, table_columns(tables))  # derive's checks, first
     future = [f"#{i + 1} ({tr.type_name})" for i, tr in enumerate(transforms) if not tr.past_only]
     if future and not allow_future:
         raise OptionError(f"transform(s) {', '.join(future)} use later occasions (past_only is False), so their "
@@ -101,7 +104,8 @@ def snapshot(
             raise ColumnExistsError(f"landmark column {label!r} is already in the frame; choose another with name=",
                                     column=label, count=1)
 
-    panel = Panel(frame, id=id_cols, time=time_col, unit=unit)
+    panel = Panel(frame, id=id_cols, time=time_col, unit=keys["unit"], order=keys["order"],
+                  time_unit=keys["time_unit"])
     numbers = [v for v in given if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)]
     clock = Clock.build(frame[time_col], columns=[frame[at_col]] if at_col else [], numbers=numbers)
     s = panel.subjects
@@ -133,13 +137,12 @@ def snapshot(
     last = last_at_or_before(s.grp, t, p_grp, p_t) if len(p_grp) else np.zeros(0, dtype=np.int64)
 
     # ---- the derived features at each pair's last occasion
-    kwargs: dict[str, Any] = {} if tables is None else {"tables": tables}
     if not future:
-        full = derive(frame, *transforms, id=id_cols, time=time_col, unit=unit, **kwargs)
+        full = derive(frame, *transforms, id=id_cols, time=time_col, tables=tables, **keys)
         rows = np.where(last >= 0, panel.ordering.positions(np.maximum(last, 0)), -1)
     else:
-        full, rows = _cut_and_derive(frame, panel, transforms, id_cols, time_col, unit, tables, clock, p_grp, p_t,
-                                     last)
+        lm_values = pd.Series(landmark)
+        full, rows = _cut_and_derive(frame, panel, transforms, time_col, keys, tables, p_grp, lm_values, last)
     first_pos = panel.ordering.positions(s.starts)
     out: dict[str, Any] = {c: frame[c].take(first_pos[p_grp]).array for c in id_cols}
     out[label] = landmark
@@ -155,21 +158,23 @@ def _values(s: pd.Series) -> Any:
     return s.to_numpy() if isinstance(s.dtype, np.dtype) else s.array
 
 
-def _steps(steps: Any, id: Any, time: Any, unit: Any) -> tuple[list[Transform], list[str], str, str | None]:
+def _steps(steps: Any, id: Any, time: Any, keys: dict[str, Any]
+           ) -> tuple[list[Transform], list[str], str, dict[str, Any]]:
     if isinstance(steps, Derivation):
-        clashes = [(what, mine, theirs) for what, mine, theirs in
-                   (("id", None if id is None else as_id_list(id), steps.id_cols), ("time", time, steps.time),
-                    ("unit", unit, steps.unit)) if mine is not None and mine != theirs]
+        theirs = {"id": steps.id_cols, "time": steps.time, "unit": steps.unit, "order": steps.order,
+                  "time_unit": steps.time_unit}
+        mine = {"id": None if id is None else as_id_list(id), "time": time, **keys}
+        clashes = [k for k, v in mine.items() if v is not None and v != theirs[k]]
         if clashes:
-            what, mine, theirs = clashes[0]
-            raise OptionError(f"{what}={mine!r} differs from the derivation's {what}={theirs!r}")
-        return list(steps.transforms), steps.id_cols, steps.time, steps.unit
+            k = clashes[0]
+            raise OptionError(f"{k}={mine[k]!r} differs from the derivation's {k}={theirs[k]!r}")
+        return list(steps.transforms), steps.id_cols, steps.time, {k: theirs[k] for k in keys}
     transforms = [steps] if isinstance(steps, Transform) else list(steps)
     if id is None or time is None:
         raise OptionError("give id= and time= (or a Derivation, which holds them)")
     if not isinstance(time, str):
         raise OptionError(f"time must be a column name, got {time!r}")
-    return transforms, as_id_list(id), time, unit
+    return transforms, as_id_list(id), time, keys
 
 
 def _free_name(columns: Sequence[Any], base: str) -> str:
@@ -179,39 +184,55 @@ def _free_name(columns: Sequence[Any], base: str) -> str:
     return name
 
 
-def _cut_and_derive(frame: pd.DataFrame, panel: Panel, transforms: list[Transform], id_cols: list[str],
-                    time_col: str, unit: str | None, tables: Mapping[str, pd.DataFrame] | None, clock: Clock,
-                    p_grp: np.ndarray, p_t: np.ndarray, last: np.ndarray) -> tuple[pd.DataFrame, np.ndarray]:
+def _cut_and_derive(frame: pd.DataFrame, panel: Panel, transforms: list[Transform], time_col: str,
+                    keys: dict[str, Any], tables: Mapping[str, pd.DataFrame] | None, p_grp: np.ndarray,
+                    landmark: pd.Series, last: np.ndarray) -> tuple[pd.DataFrame, np.ndarray]:
     """Every (subject, landmark) pair as a subject of its own holding the rows up to its landmark;
     all derived in one call.  Returns the derived copies and, per pair, the copy's last row (-1: none)."""
     s = panel.subjects
     start = s.starts[p_grp]
     count = np.where(last >= 0, last - start + 1, 0)
     pair = np.repeat(np.arange(len(p_grp)), count)
-    sorted_rows = np.repeat(start, count) + (np.arange(int(count.sum())) - np.repeat(np.cumsum(count) - count, count))
-    key = _free_name(list(frame.columns), "_landmark_pair")
-    cut = frame.iloc[panel.ordering.positions(sorted_rows)].reset_index(drop=True)
+    key = _free_name([*frame.columns, *(c for t in (tables or {}).values() for c in t.columns)], "_landmark_pair")
+    cut = frame.iloc[panel.ordering.positions(_ranges(start, count))].reset_index(drop=True)
     cut.insert(0, key, pair)
-    kwargs: dict[str, Any] = {}
+    cut_tables = None
     if tables is not None:
-        kwargs["tables"] = {nm: _cut_table(tab, nm, frame, id_cols, time_col, clock, s.count, p_grp, p_t, key)
-                            for nm, tab in tables.items()}
-    full = derive(cut, *transforms, id=key, time=time_col, unit=unit, **kwargs)
+        cut_tables = {nm: _cut_table(tab, nm, transforms, panel, p_grp, landmark, key) for nm, tab in tables.items()}
+    full = derive(cut, *transforms, id=key, time=time_col, tables=cut_tables, **keys)
     ends = np.cumsum(count) - 1
     return full.drop(columns=[key]), np.where(count > 0, ends, -1)
 
 
-def _cut_table(table: pd.DataFrame, nm: str, frame: pd.DataFrame, id_cols: list[str], time_col: str, clock: Clock,
-               n_subjects: int, p_grp: np.ndarray, p_t: np.ndarray, key: str) -> pd.DataFrame:
-    """A side table's rows at or before each pair's landmark, one copy per pair, keyed by the pair."""
-    tcol = side_time_column(table, id_cols, time_col, f"table {nm!r}")
-    rows = side_rows(table, tcol, frame, id_cols, n_subjects, clock, f"table {nm!r}", unique=False)
-    # pairs are in subject order; each pair takes its subject's table rows up to the landmark
-    first = np.searchsorted(rows.grp, p_grp, side="left")
-    upto = last_at_or_before(rows.grp, rows.t, p_grp, p_t)
-    count = np.where(upto >= 0, upto - first + 1, 0)
+def _ranges(start: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """start[i], start[i] + 1, ..., start[i] + count[i] - 1 for every i, concatenated."""
+    return np.repeat(start, count) + (np.arange(int(count.sum())) - np.repeat(np.cumsum(count) - count, count))
+
+
+def _cut_table(table: pd.DataFrame, name: str, transforms: list[Transform], panel: Panel, p_grp: np.ndarray,
+               landmark: pd.Series, key: str) -> pd.DataFrame:
+    """A side table, one copy of each subject's records per (subject, landmark) pair, keyed by the
+    pair: records whose time (every time column the transforms order it by) is after the landmark
+    are removed, end times after it brought back to it (the cut of assert_past_only)."""
+    psub = SideTable(name, table, panel).psub  # panel subject of each record, -1 when absent
+    known = np.flatnonzero(psub >= 0)
+    by_subject = known[np.argsort(psub[known], kind="stable")]
+    n_rec = np.bincount(psub[known], minlength=panel.subjects.count)
+    first = np.cumsum(n_rec) - n_rec
+    count = n_rec[p_grp]
+    records = by_subject[_ranges(first[p_grp], count)]
     pair = np.repeat(np.arange(len(p_grp)), count)
-    taken = np.repeat(first, count) + (np.arange(int(count.sum())) - np.repeat(np.cumsum(count) - count, count))
-    out = table.iloc[rows.pos[taken]].reset_index(drop=True)
-    out.insert(0, key, pair)
+    out = table.iloc[records].reset_index(drop=True)
+    cut_at = landmark.take(pair).reset_index(drop=True)
+    uses = [u for tr in transforms for u in tr.tables() if u.name == name]
+    drop = np.zeros(len(out), dtype=bool)
+    for col in dict.fromkeys(u.time for u in uses):
+        drop |= (out[col] > cut_at).fillna(False).to_numpy(dtype=bool)
+    keep = np.flatnonzero(~drop)
+    out, cut_at = out.iloc[keep].reset_index(drop=True), cut_at.iloc[keep].reset_index(drop=True)
+    for col in dict.fromkeys(e for u in uses for e in u.ends):
+        late = (out[col] > cut_at).fillna(False).to_numpy(dtype=bool)
+        if late.any():
+            out[col] = out[col].where(~late, cut_at)
+    out.insert(0, key, pair[keep])
     return out

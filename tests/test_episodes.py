@@ -126,6 +126,8 @@ def test_events_named_as_a_side_table_and_their_errors():
     assert err.value.ids == [7]
     with pytest.raises(pfx.DuplicateOccasionError):
         ep(df, events=pd.DataFrame({"pid": [1, 1], "day": [2, 2]}))
+    with pytest.raises(pfx.ColumnTypeError, match="no subject could match"):  # the check of derive's side tables
+        ep(df, events=pd.DataFrame({"pid": ["1"], "day": [2]}))
     with pytest.raises(pfx.NullKeyError):
         ep(df, events=pd.DataFrame({"pid": [1, 1], "day": [2, None]}))
     with pytest.raises(pfx.MissingColumnError, match="not exactly one column"):

@@ -21,8 +21,9 @@ PAST = [pfx.lag("y"), pfx.change_from_previous("y"), pfx.carry_forward("y"), pfx
 FUTURE = [pfx.baseline("y"), pfx.change_from_baseline("y"), pfx.within_between("y"), pfx.lag("y", -1)]
 
 
-def loop(frame, transforms, landmarks, id_, time, label="landmark"):
-    """The definition, one subject and landmark at a time (slow)."""
+def loop(frame, transforms, landmarks, id_, time, label="landmark", tables=None, table_time="day", order=None):
+    """The definition, one subject and landmark at a time (slow): side-table records after the
+    landmark are removed too."""
     ids = [id_] if isinstance(id_, str) else list(id_)
     keys = list(frame[ids].itertuples(index=False, name=None))
     out = []
@@ -33,7 +34,11 @@ def loop(frame, transforms, landmarks, id_, time, label="landmark"):
             row = dict(zip(ids, k))
             row[label] = lm
             if len(cut):
-                last = pfx.derive(cut, *transforms, id=id_, time=time).sort_values(time).iloc[-1]
+                cut_tables = None if tables is None else {
+                    nm: tab.loc[~(tab[table_time] > lm).fillna(False).to_numpy(dtype=bool)]
+                    for nm, tab in tables.items()}
+                got = pfx.derive(cut, *transforms, id=id_, time=time, tables=cut_tables, order=order)
+                last = got.sort_values([time] if order is None else [time, order]).iloc[-1]
                 row.update({c: last[c] for c in last.index if c not in ids})
             out.append(row)
     return out
@@ -178,3 +183,36 @@ def test_derivation_declaration_must_agree():
     df = pd.DataFrame({"pid": [1], "day": [0], "y": [1.0]})
     with pytest.raises(pfx.OptionError, match="differs from the derivation"):
         pfx.snapshot(df, d, at=[1], time="other")
+
+
+def test_side_tables_are_cut_at_the_landmark_too():
+    """as_of reads a laboratory table: backward (past-only) and nearest (uses later records), against the loop."""
+    rng = np.random.default_rng(3)
+    visits = pd.DataFrame({"pid": np.repeat([1, 2, 3], 4), "day": np.tile([0, 30, 60, 90], 3),
+                           "y": rng.normal(size=12).round(2)})
+    labs = pd.DataFrame({"pid": [1, 1, 1, 2, 2, 3, 9], "day": [5, 29, 61, 40, 100, 0, 3],
+                         "alt": [30.0, 41.0, 55.0, 20.0, 25.0, None, 99.0]})
+    tables = {"labs": labs}
+    lms = [0, 30, 45, 90]
+    past = [pfx.as_of("labs", "alt", time="day"), pfx.lag("y")]
+    got = pfx.snapshot(visits, past, at=lms, id="pid", time="day", tables=tables)
+    equal(got, loop(visits, past, lms, "pid", "day", tables=tables))
+    np.testing.assert_array_equal(got["alt_asof"].to_numpy(dtype=float)[:4], [np.nan, 41.0, 41.0, 55.0])
+    nearest = [pfx.as_of("labs", "alt", time="day", direction="nearest", name="alt_near"), pfx.baseline("y")]
+    with pytest.raises(pfx.OptionError, match="use later occasions"):
+        pfx.snapshot(visits, nearest, at=lms, id="pid", time="day", tables=tables)
+    got = pfx.snapshot(visits, nearest, at=lms, id="pid", time="day", tables=tables, allow_future=True)
+    want = loop(visits, nearest, lms, "pid", "day", tables=tables)
+    equal(got, want)
+    # the nearest record as of day 45 for subject 1 is the one at 29, not the later one at 61
+    assert got.loc[(got["pid"] == 1) & (got["landmark"] == 45), "alt_near"].item() == 41.0
+
+
+def test_tied_occasions_with_an_order_column():
+    df = pd.DataFrame({"pid": [1, 1, 1, 1], "day": [0, 10, 10, 20], "seq": [1, 2, 1, 1], "y": [1.0, 3.0, 2.0, 4.0]})
+    steps = [pfx.lag("y"), pfx.cumulative("y")]
+    got = pfx.snapshot(df, steps, at=[10, 15], id="pid", time="day", order="seq")
+    equal(got, loop(df, steps, [10, 15], "pid", "day", order="seq"))
+    assert got["y"].tolist() == [3.0, 3.0]  # the last of the tied rows in (day, seq)
+    d = pfx.Derivation(*steps, id="pid", time="day", order="seq")
+    pd.testing.assert_frame_equal(pfx.snapshot(df, d, at=[10, 15]), got)
