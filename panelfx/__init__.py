@@ -19,11 +19,13 @@ from .check import check
 from .collapse import collapse_ties
 from .derivation import Derivation, DerivationFileError
 from .derive import derive
+from .episodes import episodes
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
     ConflictingTiesError,
     DuplicateOccasionError,
+    FollowUpError,
     IntervalError,
     MissingColumnError,
     MissingTableError,
@@ -35,8 +37,11 @@ from .errors import (
     PrecisionError,
     TiedRecordsError,
     TimeTypeError,
+    UnknownSubjectError,
 )
 from .grid import grid
+from .person_time import person_time
+from .snapshot import snapshot
 from .summary import subject_summary
 from .transforms.analysis_visit import analysis_visit
 from .transforms.as_of import as_of
@@ -108,6 +113,10 @@ __all__ = [
     "carry_baseline",
     "carry_worst",
     "treatment_emergent",
+    # interval data
+    "episodes",
+    "person_time",
+    "snapshot",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -125,4 +134,6 @@ __all__ = [
     "MissingTableError",
     "TiedRecordsError",
     "IntervalError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]

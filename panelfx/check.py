@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._check_visits import planned_findings, window_findings
+from ._interval_check import interval_findings
 from ._panel import Panel, as_id_list, require_columns, time_kind
 from .errors import OptionError
 
@@ -25,6 +26,7 @@ PROBLEMS = {
     "late": "warning",
     "extra": "warning",
     "no_day": "warning",
+    "interval_data": "warning",
     "single_occasion": "note",
     "not_in_order": "note",
 }
@@ -77,6 +79,11 @@ def check(
       one that shares a window with an occasion nearer the target, ``missed`` for a window that starts on or before the
       subject's last day (always the first window) with no occasion (``time`` is the target
       when the time column holds the study days), ``no_day`` where the day is missing.
+      reported: the end of planned follow-up is not known here.
+    - ``interval_data``: another column of times looks like the stop of (start, stop]
+      intervals that begin at ``time`` (never before it, equal to the next row's time on most
+      rows): events happen at the stop, so ``time=start`` is wrong for transforms of an event
+      flag (warning, once per such column);
     - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
       when rows are not grouped by subject in time order; harmless for panelfx).
 
@@ -141,6 +148,8 @@ def check(
         parts.extend(window_findings(panel, positions, rows, windows=windows, day=day))
     elif tolerance is not None:
         raise OptionError("tolerance= needs spacing= (the planned interval between occasions)")
+
+    parts.extend(interval_findings(frame, panel, positions, id_cols, time, _rows))
 
     if notes:
         single = np.flatnonzero(panel.subjects.lengths == 1) if panel.n else np.array([], dtype=int)

@@ -28,6 +28,8 @@ __all__ = [
     "MissingTableError",
     "TiedRecordsError",
     "IntervalError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]
 
 #: How many offending ids an error message shows.
@@ -116,6 +118,13 @@ class TiedRecordsError(PanelError, ValueError):
 class IntervalError(PanelError, ValueError):
     """Interval records (dosing, dispensing) that cannot be used: an end before its start, or
     records of one subject that overlap where overlaps are refused."""
+class FollowUpError(PanelError, ValueError):
+    """Follow-up or person-time is not defined: a missing entry, exit, event flag, start or stop, an
+    exit at or before entry, a stop at or before start, or an event count that is not a whole number."""
+
+
+class UnknownSubjectError(PanelError, ValueError):
+    """A side table names subjects that are not in the frame."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

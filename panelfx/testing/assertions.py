@@ -444,7 +444,9 @@ def assert_panel_structure(
 ) -> None:
     """Assert that ``frame`` is a well-formed long panel: no missing id or time and no
     duplicate (id, time); with ``spacing`` also that every visit is on schedule (no
-    early, late, missed or extra visit, as :func:`panelfx.check` defines them).
+    early, late, missed or extra visit, as :func:`panelfx.check` defines them).  Like
+    every warning of :func:`panelfx.check`, ``interval_data`` (the frame looks like
+    (start, stop] data declared with its start column as time) fails it too.
 
     A missing id/time column or a time column of text raise their usual
     :class:`~panelfx.PanelError`, as in :func:`panelfx.check`.
