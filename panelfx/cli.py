@@ -25,13 +25,15 @@ import argparse
 import io
 import json
 import os
+import signal
 import sys
+import time
 from collections.abc import Callable, Sequence
 from typing import Any, NoReturn
 
 import pandas as pd
 
-from .derivation import ATTRS_KEY, Derivation, write_atomic
+from .derivation import ATTRS_KEY, TMP_SUFFIX, Derivation, write_atomic
 
 __all__ = ["COMMANDS", "read_frame", "write_frame"]
 
@@ -253,13 +255,63 @@ def write_frame(
                     done += part.num_rows
 
     existed = os.path.exists(path)
+    _sweep_stale(path)
     try:
-        write_atomic(path, write)
+        with _terminate_cleanly():
+            write_atomic(path, write)
     except OSError as err:
         kept = f"{path} was left as it was" if existed else f"no {path} was made"
         reason = " ".join(str(err.strerror or err).split()) or type(err).__name__
         raise OSError(f"writing {path} failed ({kept}): {reason}") from err
     progress.say(f"wrote {table.num_rows:,} rows, {table.num_columns} columns to {path}")
+
+
+class Terminated(BaseException):
+    """SIGTERM arrived while writing: raised so that the temporary file is removed on the way out."""
+
+
+#: When the current command started: temporary files older than this are left by earlier runs.
+_started = time.time()
+
+
+def _sweep_stale(path: str) -> None:
+    """Remove temporary files an earlier, killed run left beside ``path`` (``kill -9`` cannot be
+    caught): same target name and suffix as :func:`~panelfx.derivation.write_atomic` makes,
+    last written before this run started, so a concurrent writer's live file is not touched."""
+    folder, base = os.path.split(os.path.abspath(path))
+    prefix = f".{base}."
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        if name.startswith(prefix) and name.endswith(TMP_SUFFIX):
+            stale = os.path.join(folder, name)
+            try:
+                if os.stat(stale).st_mtime < _started:
+                    os.remove(stale)
+            except OSError:  # gone already, or not ours to remove
+                pass
+
+
+class _terminate_cleanly:
+    """While writing, SIGTERM raises :class:`Terminated` (the atomic writer then removes its
+    temporary file) instead of killing the process at once; the old handler comes back after."""
+
+    def __enter__(self) -> None:
+        self.old: Any = None
+        try:
+            self.old = signal.signal(signal.SIGTERM, self._raise)
+        except ValueError:  # not the main thread: signals cannot be handled here
+            pass
+
+    @staticmethod
+    def _raise(signum: int, frame: Any) -> None:
+        raise Terminated()
+
+    def __exit__(self, *exc: object) -> None:
+        if self.old is not None:
+            signal.signal(signal.SIGTERM, self.old)
 
 
 def _dumps(value: Any) -> bytes:
@@ -377,6 +429,9 @@ def _apply(argv: list[str]) -> int:
     folder = os.path.dirname(os.path.abspath(args.output))
     if not os.path.isdir(folder):
         raise FileNotFoundError(f"output folder {folder!r} does not exist")
+    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
+                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
+                                       for spec in args.table}})
     if file_format(args.input, args.input_format, "input") == "parquet" and os.path.exists(args.input):
         import pyarrow.parquet as pq
 
@@ -393,6 +448,19 @@ def _apply(argv: list[str]) -> int:
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
     write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
     return 0
+
+
+def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
+    """Refuse an output that is one of the files the run reads (same file, however named):
+    writing it would destroy the data the result comes from."""
+    for what, path in sources.items():
+        try:
+            same = os.path.samefile(output, path)  # compares device and inode: links and ../ spellings too
+        except OSError:  # one of them does not exist (yet): they cannot be the same file
+            continue
+        if same:
+            raise UsageError(f"-o {output} is the {what} file {path}: refusing to overwrite it; "
+                             "write the result to another file")
 
 
 def _dictionary(argv: list[str]) -> int:
@@ -431,10 +499,15 @@ def _run(name: str, command: Callable[[list[str]], int]) -> Callable[[list[str]]
     """Wrap a command: errors become one line on stderr and exit code 2."""
 
     def run(argv: list[str]) -> int:
+        global _started
+        _started = time.time()
         try:
             return command(list(argv))
         except SystemExit as stop:  # --help
             return stop.code if isinstance(stop.code, int) else 0
+        except Terminated:  # the temporary file is gone; 128 + 15 as the shell reports SIGTERM
+            print(f"panelfx {name}: terminated before the output was complete; nothing was written", file=sys.stderr)
+            return 128 + signal.SIGTERM
         except KeyboardInterrupt:
             print(f"panelfx {name}: interrupted", file=sys.stderr)
             return 130

@@ -334,3 +334,85 @@ def test_check_with_an_order_column(files, capsys):
     capsys.readouterr()
     assert main(["check", "tied.csv", "--id", "pid", "--time", "hour", "--order", "seq", "-q"]) == 0
     assert capsys.readouterr().out.startswith("no structural problems")
+
+
+# ------------------------------------------------------------------------------ faults (issue 17)
+
+
+def test_output_onto_an_input_is_refused(tmp_path):
+    """-o naming the input or the derivation itself (also through a link or another spelling of
+    the path) is refused with exit code 2 before anything is read or written: it would destroy
+    the data the result comes from."""
+    _cohort().to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    (tmp_path / "sub").mkdir()
+    os.link(tmp_path / "visits.csv", tmp_path / "sub" / "hard.csv")
+    before = {p: p.read_bytes() for p in (tmp_path / "visits.csv", tmp_path / "d.json")}
+    for output, what in [("visits.csv", "input"), ("./sub/../visits.csv", "input"), ("sub/hard.csv", "input"),
+                         ("d.json", "derivation")]:
+        run = _run("apply", "d.json", "visits.csv", "-o", output, "--output-format", "csv", cwd=tmp_path)
+        assert run.returncode == 2, (output, run.stderr)
+        assert run.stderr.strip().splitlines() == [
+            f"panelfx apply: error: -o {output} is the {what} file "
+            f"{'visits.csv' if what == 'input' else 'd.json'}: refusing to overwrite it; "
+            "write the result to another file"], run.stderr
+        assert {p: p.read_bytes() for p in before} == before
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "sub", "visits.csv"]
+
+
+_SLOW_WRITE = textwrap.dedent("""
+    import sys, time
+    import pyarrow.parquet as pq
+    from panelfx.__main__ import main
+
+    class Slow(pq.ParquetWriter):  # each slice takes a while, so the run is killed half-way
+        def write_table(self, table, *a, **k):
+            super().write_table(table, *a, **k)
+            print("slice", flush=True)
+            time.sleep(30)
+
+    pq.ParquetWriter = Slow
+    sys.exit(main(sys.argv[1:]))
+""")
+
+
+@pytest.mark.skipif(not hasattr(os, "kill") or sys.platform == "win32", reason="needs POSIX signals")
+def test_killed_run_leaves_no_temporary_file(tmp_path):
+    """SIGTERM half-way through the write: the temporary file is removed, the earlier output is
+    untouched, exit code 143 (128 + SIGTERM). A temporary file left by a run killed outright
+    (SIGKILL cannot be caught) is swept by the next run."""
+    import signal
+
+    _cohort().to_parquet(tmp_path / "visits.parquet")
+    DERIVATION.save(tmp_path / "d.json")
+    (tmp_path / "out.parquet").write_bytes(b"earlier output")
+    env = {**os.environ, "PYTHONDONTWRITEBYTECODE": "1"}
+
+    def start() -> subprocess.Popen:
+        child = subprocess.Popen([sys.executable, "-c", _SLOW_WRITE, "apply", "d.json", "visits.parquet", "-o",
+                                  "out.parquet", "-q"], cwd=tmp_path, env=env, stdout=subprocess.PIPE,
+                                 stderr=subprocess.PIPE, text=True)
+        assert child.stdout is not None and child.stdout.readline() == "slice\n"  # half-way through the write
+        assert [n for n in os.listdir(tmp_path) if n.endswith(".panelfx-tmp")]
+        return child
+
+    child = start()
+    child.send_signal(signal.SIGTERM)
+    out, err = child.communicate(timeout=60)
+    assert child.returncode == 143, err
+    assert err.strip().splitlines() == ["panelfx apply: terminated before the output was complete; "
+                                        "nothing was written"]
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "out.parquet", "visits.parquet"]
+    assert (tmp_path / "out.parquet").read_bytes() == b"earlier output"
+
+    child = start()
+    child.kill()  # SIGKILL: the temporary file stays behind ...
+    child.communicate(timeout=60)
+    left = [n for n in os.listdir(tmp_path) if n.endswith(".panelfx-tmp")]
+    assert len(left) == 1 and left[0].startswith(".out.parquet.")
+    (tmp_path / ".other.parquet.x.panelfx-tmp").write_bytes(b"")  # another target's: not swept
+    run = _run("apply", "d.json", "visits.parquet", "-o", "out.parquet", "-q", cwd=tmp_path)
+    assert run.returncode == 0, run.stderr  # ... until the next run sweeps it
+    assert sorted(os.listdir(tmp_path)) == [".other.parquet.x.panelfx-tmp", "d.json", "out.parquet",
+                                            "visits.parquet"]
+    pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "out.parquet"), DERIVATION.apply(_cohort()))
