@@ -416,3 +416,78 @@ def test_killed_run_leaves_no_temporary_file(tmp_path):
     assert sorted(os.listdir(tmp_path)) == [".other.parquet.x.panelfx-tmp", "d.json", "out.parquet",
                                             "visits.parquet"]
     pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "out.parquet"), DERIVATION.apply(_cohort()))
+
+
+def _into_closed_pipe(*args: str, cwd, stdin: bytes | None = None) -> subprocess.CompletedProcess:
+    """Run the real entry point with stdout a pipe whose reader is already gone (as after
+    ``| head`` has read its lines): every write to stdout fails with EPIPE."""
+    read, write = os.pipe()
+    os.close(read)
+    try:
+        env = {**os.environ, "PYTHONDONTWRITEBYTECODE": "1"}
+        return subprocess.run([sys.executable, "-m", "panelfx", *args], stdout=write, stderr=subprocess.PIPE,
+                              input=stdin, cwd=cwd, env=env, timeout=120)
+    finally:
+        os.close(write)
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="POSIX pipes")
+@pytest.mark.parametrize("args", [
+    ["check", "visits.csv", "--id", "pid", "--time", "day", "--spacing", "7", "--csv", "-q"],
+    ["check", "visits.csv", "--id", "pid", "--time", "day", "--spacing", "7"],
+    ["dictionary", "d.json"],
+    ["dictionary", "d.json", "--csv"],
+    ["apply", "d.json", "visits.csv", "-o", "-", "-q"],
+])
+def test_closed_stdout_exits_quietly(tmp_path, args):
+    """``| head``: the reader of stdout goes away; the command stops with exit code 141
+    (128 + SIGPIPE, what the shell reports for tools killed by a closed pipe) and says nothing
+    on stderr: no traceback, no 'Broken pipe', no error line."""
+    _cohort(50).to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    run = _into_closed_pipe(*args, cwd=tmp_path)
+    assert run.returncode == 141, run.stderr
+    assert run.stderr == b""
+
+
+def test_stdin_and_stdout(tmp_path):
+    """``-`` as input reads CSV from stdin and ``-o -`` writes CSV to stdout: the same values as
+    through files; progress stays on stderr; Parquet to stdout is refused."""
+    _cohort().to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    text = (tmp_path / "visits.csv").read_text()
+    run = _run("apply", "d.json", "-", "-o", "-", input=text, cwd=tmp_path)
+    assert run.returncode == 0, run.stderr
+    assert run.stderr.splitlines()[0] == "panelfx apply: read 12 rows, 4 columns from stdin"
+    assert run.stderr.splitlines()[-1] == "panelfx apply: wrote 12 rows, 9 columns to stdout"
+    assert _run("apply", "d.json", "visits.csv", "-o", "file.csv", "-q", cwd=tmp_path).returncode == 0
+    assert run.stdout == (tmp_path / "file.csv").read_text()
+    import io
+
+    got = pd.read_csv(io.StringIO(run.stdout))
+    expected = DERIVATION.apply(_cohort())
+    pd.testing.assert_frame_equal(got.drop(columns="visit"), expected.drop(columns="visit"), check_dtype=False)
+
+    run = _run("check", "-", "--id", "pid", "--time", "day", "--spacing", "30", input=text, cwd=tmp_path)
+    assert run.returncode == 0 and run.stdout.startswith("no structural problems found in - (12 rows)"), run.stderr
+    run = _run("apply", "d.json", "visits.csv", "-o", "-", "--output-format", "parquet", cwd=tmp_path)
+    assert run.returncode == 2 and run.stdout == ""
+    assert run.stderr.strip() == "panelfx apply: error: -o - writes CSV to stdout; Parquet needs a file name"
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "file.csv", "visits.csv"]
+
+
+def test_check_csv_splits_composite_ids(files, capsys):
+    """Several --id columns: the CSV report has one column per id column (named after it,
+    ``id_`` in front of a name the report already uses), not the text of a Python tuple."""
+    df = _cohort().assign(site=["007"] * 6 + ["7"] * 6, pid=[1, 1, 1, 2, 2, 2] * 2)
+    df.loc[1, "day"] = 0  # a duplicate visit of site 007, subject 1
+    df.rename(columns={"pid": "row"}).to_csv("sites.csv", index=False)
+    assert main(["check", "sites.csv", "--id", "site", "--id", "row", "--time", "day", "--text", "site",
+                 "--csv", "-q"]) == 1
+    out = capsys.readouterr().out
+    import io
+
+    report = pd.read_csv(io.StringIO(out), dtype={"site": str})
+    assert list(report.columns) == ["problem", "severity", "site", "id_row", "row", "time", "detail"]
+    assert report[["problem", "site", "id_row", "row", "time"]].values.tolist() == [
+        ["duplicate", "007", 1, 0, 0], ["duplicate", "007", 1, 1, 0]]
