@@ -60,6 +60,9 @@ class AnalysisVisit(Transform):
         """The windows as a :class:`~panelfx.visit_windows.Windows` value."""
         return Windows(self.windows, self.overlap)
 
+    def _call_values(self) -> dict[str, Any]:
+        return {"windows": Windows(self.windows, self.overlap)}  # the constructor takes both as one
+
     def inputs(self) -> tuple[str, ...]:
         return () if self.day is None else (self.day,)
 
