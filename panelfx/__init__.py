@@ -35,6 +35,7 @@ from .errors import (
     PrecisionError,
     TiedRecordsError,
     TimeTypeError,
+    UnknownOptionError,
 )
 from .grid import grid
 from .summary import subject_summary
@@ -125,4 +126,5 @@ __all__ = [
     "MissingTableError",
     "TiedRecordsError",
     "IntervalError",
+    "UnknownOptionError",
 ]

@@ -28,6 +28,7 @@ __all__ = [
     "MissingTableError",
     "TiedRecordsError",
     "IntervalError",
+    "UnknownOptionError",
 ]
 
 #: How many offending ids an error message shows.
@@ -116,6 +117,16 @@ class TiedRecordsError(PanelError, ValueError):
 class IntervalError(PanelError, ValueError):
     """Interval records (dosing, dispensing) that cannot be used: an end before its start, or
     records of one subject that overlap where overlaps are refused."""
+
+
+class UnknownOptionError(PanelError, TypeError):
+    """A function was called with an option name it does not have (``rolling(window=3)``);
+    the message suggests the option probably meant (``occasions=`` or ``span=``)."""
+
+    def __init__(self, message: str, *, option: str, suggestions: Sequence[str] = ()) -> None:
+        super().__init__(message)
+        self.option = option
+        self.suggestions = list(suggestions)
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -43,3 +43,48 @@ def test_every_repr_rebuilds_the_transform(item):
         assert tr.options() == {f.name: getattr(tr, f.name) for f in dataclasses.fields(tr)}
         assert pfx.Derivation(tr, id="pid", time="t").to_json() == pfx.Derivation(rebuilt, id="pid",
                                                                                   time="t").to_json()
+
+
+# ------------------------------------------------------------------------ unknown options
+
+
+@pytest.mark.parametrize(("call", "message", "hints"), [
+    (lambda: pfx.rolling("sbp", window=3), "rolling() has no option window=; did you mean occasions= or span=?",
+     ["occasions", "span"]),
+    (lambda: pfx.rolling("sbp", "max", min_periods=2), "rolling() has no option min_periods=; did you mean "
+     "min_valid=?", ["min_valid"]),
+    (lambda: pfx.table_window("labs", "alt", "max", window="30D"), "table_window() has no option window=; did "
+     "you mean span=?", ["span"]),
+    (lambda: pfx.lag("sbp", fill_value=0), "lag() has no option fill_value= (missing values stay missing; "
+     "pfx.carry_forward fills them from earlier occasions); its options are: col, periods, offset", []),
+    (lambda: pfx.baseline("sbp", axis=0), "baseline() has no option axis= (transforms run down each subject's "
+     "occasions; there is no axis)", []),
+    (lambda: pfx.change_from_previous("sbp", periods=2), "change_from_previous() has no option periods=; its "
+     "options are: col, kind, skip_missing, name", []),
+    (lambda: pfx.as_of("labs", "alt", tolerance="30D"), "as_of() has no option tolerance=; did you mean within=?",
+     ["within"]),
+    (lambda: pfx.lag("sbp", skipmissing=True), "lag() has no option skipmissing=; did you mean skip_missing=?",
+     ["skip_missing"]),  # a close spelling (difflib)
+    (lambda: pfx.rolling("sbp", occasion=3), "did you mean occasions=?", ["occasions"]),
+    (lambda: pfx.first_dose("doses", strat="start"), "first_dose() has no option strat=; did you mean start=?",
+     ["start"]),
+])
+def test_unknown_options_name_the_one_meant(call, message, hints):
+    with pytest.raises(pfx.UnknownOptionError) as err:
+        call()
+    assert message in str(err.value)
+    assert isinstance(err.value, TypeError) and isinstance(err.value, pfx.PanelError)
+    assert err.value.suggestions == hints and err.value.option in str(err.value)
+
+
+def test_every_constructor_checks_its_options():
+    """Each registered transform's public constructor refuses an unknown option with the typed
+    error (a plain TypeError from Python would give no hint); known options still work."""
+    from panelfx._transform import REGISTRY, constructor
+
+    for name, cls in REGISTRY.items():
+        func = getattr(pfx, name)
+        assert constructor(cls) is func
+        with pytest.raises(pfx.UnknownOptionError, match=rf"^{name}\(\) has no option min_periods="):
+            func(min_periods=1)
+    assert pfx.rolling("sbp", occasions=3, min_valid=2).min_valid == 2

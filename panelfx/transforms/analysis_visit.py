@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from .. import _visits as V
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
 from ..errors import OptionError
@@ -103,6 +104,7 @@ class AnalysisVisit(Transform):
         return [visit, np.where(ok, number, np.nan), target, dist]
 
 
+@checked_options
 def analysis_visit(
     windows: Windows | Sequence[Sequence[Any]],
     *,

@@ -10,6 +10,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._subjects import Subjects
 from .._tables import SideView, TableUse, check_table_name, day_ticks, float_key, safe_label
@@ -391,6 +392,7 @@ def _exact_rates(rate: np.ndarray) -> tuple[np.ndarray, int]:
     return np.rint(rate * scale).astype(np.int64), scale
 
 
+@checked_options
 def exposure(
     table: str,
     *,
