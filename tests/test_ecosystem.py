@@ -88,3 +88,34 @@ def test_every_constructor_checks_its_options():
         with pytest.raises(pfx.UnknownOptionError, match=rf"^{name}\(\) has no option min_periods="):
             func(min_periods=1)
     assert pfx.rolling("sbp", occasions=3, min_valid=2).min_valid == 2
+
+
+# ------------------------------------------------------------------------------ namespace
+
+
+def test_dir_shows_the_public_api_only():
+    """Tab completion lists what is documented: every public name in dir(panelfx) is in
+    __all__, every name of __all__ is there and resolves; no submodule is left as an attribute."""
+    import types
+
+    public = [n for n in dir(pfx) if not n.startswith("_")]
+    assert sorted(public) == sorted(pfx.__all__)
+    assert all(getattr(pfx, n) is not None for n in pfx.__all__)
+    assert "__version__" in dir(pfx)
+    leaked = [n for n, v in vars(pfx).items() if isinstance(v, types.ModuleType) and not n.startswith("_")
+              and n not in pfx.__all__ and n not in {"plot", "testing", "cli", "demo"}]  # imported by other tests
+    assert leaked == []
+    assert "annotations" not in vars(pfx)
+
+
+def test_submodules_still_import():
+    """Dropping the attributes breaks no import style: ``import panelfx.errors`` then
+    ``panelfx.errors.X``, ``from panelfx import errors``, ``import panelfx.derivation as d``."""
+    import panelfx.errors
+    from panelfx import derivation as d
+    from panelfx import errors
+
+    assert panelfx.errors.PanelError is errors.PanelError is pfx.PanelError
+    assert d.Derivation is pfx.Derivation
+    with pytest.raises(AttributeError, match="has no attribute 'lagg'"):
+        pfx.lagg  # noqa: B018
