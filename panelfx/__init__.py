@@ -37,6 +37,7 @@ from .errors import (
     PrecisionError,
     TiedRecordsError,
     TimeTypeError,
+    UnknownOptionError,
     UnknownSubjectError,
 )
 from .grid import grid
@@ -136,4 +137,39 @@ __all__ = [
     "IntervalError",
     "FollowUpError",
     "UnknownSubjectError",
+    "UnknownOptionError",
 ]
+
+
+# A clean namespace (tab completion, dir()): the public API only.  The submodules imported
+# above for their contents are dropped as attributes; ``import panelfx.errors`` and
+# ``panelfx.errors.X`` keep working through ``__getattr__`` (hidden from type checkers, so
+# that a misspelt ``pfx.lagg`` is still flagged).
+def __dir__() -> list[str]:
+    return sorted({*__all__, *(n for n in globals() if n.startswith("__") and n.endswith("__"))})
+
+
+def _drop_submodules() -> None:
+    import types
+
+    for name, value in list(globals().items()):
+        if isinstance(value, types.ModuleType) and not name.startswith("_") and name not in __all__:
+            del globals()[name]
+    globals().pop("annotations", None)  # the __future__ feature stays on; only the name goes
+
+
+_drop_submodules()
+
+from typing import TYPE_CHECKING  # noqa: E402  (here: used only by the block below)
+
+if not TYPE_CHECKING:
+
+    def __getattr__(name: str) -> object:
+        import sys
+
+        module = sys.modules.get(f"{__name__}.{name}")  # a submodule already imported
+        if module is None:
+            raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+        return module
+
+del TYPE_CHECKING

@@ -3,13 +3,16 @@
 A transform is a frozen, keyword-only dataclass built by a small constructor function
 (``baseline("sbp")``).  Its fields are its options, so ``repr`` shows them, two equal
 configurations compare equal, and a saved derivation can rebuild it from plain values.
-Subclasses register themselves under ``type_name`` for that purpose.
+Subclasses register themselves under ``type_name`` for that purpose; the constructor
+function of that name gives the ``repr`` (``pfx.rolling('sbp', 'max', span='90d')``).
 """
 
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Sequence
+import inspect
+import sys
+from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any, ClassVar
 
 from .errors import OptionError
@@ -32,6 +35,17 @@ class Transform:
         super().__init_subclass__(**kwargs)
         if cls.type_name:
             REGISTRY[cls.type_name] = cls
+        if "__repr__" not in cls.__dict__:  # set before @dataclass runs, which then keeps it
+            cls.__repr__ = Transform.__repr__  # type: ignore[method-assign]
+
+    def __repr__(self) -> str:
+        """The call that builds this transform: ``pfx.lag('sbp', 2)``, options at their defaults
+        left out (``ClassName(field=...)`` for a transform without a public constructor)."""
+        call = _constructor_call(self)
+        if call is not None:
+            return call
+        fields = ", ".join(f"{f.name}={getattr(self, f.name)!r}" for f in dataclasses.fields(self) if f.repr)
+        return f"{type(self).__qualname__}({fields})"
 
     # -- what it needs and makes -------------------------------------------------
     def inputs(self) -> tuple[str, ...]:
@@ -70,10 +84,72 @@ class Transform:
         """Side tables the transform reads (``derive(..., tables=)``), with the columns it reads."""
         return ()
 
+    def _call_values(self) -> dict[str, Any]:
+        """Constructor arguments that are not simply the field of that name (for the repr)."""
+        return {}
+
     # -- shared helpers ------------------------------------------------------------
     def options(self) -> dict[str, Any]:
         """The fields as plain values (what a saved derivation stores)."""
         return {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
+
+
+def constructor(cls: type[Transform]) -> Callable[..., Transform] | None:
+    """The public constructor function of a transform class: the function named ``type_name``
+    in the module that defines the class, if its parameters are all fields of the class."""
+    func = getattr(sys.modules.get(cls.__module__), cls.type_name, None) if cls.type_name else None
+    if not callable(func):
+        return None
+    fields = {f.name for f in dataclasses.fields(cls)}
+    params = inspect.signature(func).parameters.values()
+    if any(p.kind in (p.VAR_POSITIONAL, p.VAR_KEYWORD) or p.name not in fields for p in params):
+        return None
+    return func
+
+
+def _constructor_call(tr: Transform) -> str | None:
+    func = constructor(type(tr))
+    if func is None:
+        return None
+    params = list(inspect.signature(func).parameters.values())
+    values = {p.name: getattr(tr, p.name) for p in params} | tr._call_values()
+    required = {p.name: values[p.name] for p in params if p.default is p.empty}
+    try:  # the options the constructor fills in by itself (periods=None becomes 1, say)
+        plain = func(**required)
+    except Exception:  # noqa: BLE001 - some options are needed together; keep the signature defaults only
+        plain = None
+
+    def call(keep: Callable[[inspect.Parameter], bool]) -> tuple[str, dict[str, Any]]:
+        kept = [p for p in params if p.default is p.empty or keep(p)]
+        # Positional as in the signature up to the first one left out, keywords after it.
+        positional: list[str] = []
+        for p in params:
+            if p.kind is not p.POSITIONAL_OR_KEYWORD or p not in kept:
+                break
+            positional.append(p.name)
+        words = [repr(values[n]) for n in positional]
+        words += [f"{p.name}={values[p.name]!r}" for p in kept if p.name not in positional]
+        return f"pfx.{func.__name__}({', '.join(words)})", {p.name: values[p.name] for p in kept}
+
+    def differs(p: inspect.Parameter) -> bool:
+        return not _same(values[p.name], p.default)
+
+    short, kwargs = call(lambda p: differs(p) and (plain is None or not _same(values[p.name],
+                                                                              getattr(plain, p.name))))
+    longer, all_kwargs = call(differs)
+    # The repr must rebuild the same transform: leaving out a normalised option may not (then
+    # say more), and a field the constructor does not take may differ (then no call at all).
+    for text, kw in ((short, kwargs), (longer, all_kwargs)):
+        try:
+            if func(**kw) == tr:
+                return text
+        except Exception:  # noqa: BLE001
+            pass
+    return None
+
+
+def _same(a: Any, b: Any) -> bool:
+    return type(a) is type(b) and a == b  # 1 and 1.0 and True are different options
 
 
 def check_choice(name: str, value: Any, choices: Sequence[Any]) -> None:

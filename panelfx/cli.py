@@ -12,9 +12,15 @@ Files are read and written through pyarrow; the format follows the extension (``
 ``--output-format`` say otherwise.  Progress and a summary go to stderr, the report and
 the dictionary to stdout.
 
+``-`` as the input reads CSV from stdin; ``-o -`` writes CSV to stdout (pipes:
+``zcat visits.csv.gz | panelfx apply d.json - -o - | head``).
+
 Exit codes: 0 success; 1 ``check`` found fatal problems; 2 an error (bad arguments, an
-unreadable or malformed file, data the derivation refuses, a failed write), reported as
-one line on stderr.  Output is written to a temporary file beside the target and renamed
+unreadable or malformed file, data the derivation refuses, a failed write, ``-o`` naming
+one of the files the run reads), reported as one line on stderr; 141 (128 + SIGPIPE, what
+the shell reports for other tools) when the reader of stdout stopped early, as ``head``
+does, without a message; 143 (128 + SIGTERM) when terminated while writing (no temporary
+file is left).  Output is written to a temporary file beside the target and renamed
 into place only when complete, so a failed run never leaves a half-written file in place
 of a good one.
 """
@@ -25,13 +31,15 @@ import argparse
 import io
 import json
 import os
+import signal
 import sys
+import time
 from collections.abc import Callable, Sequence
 from typing import Any, NoReturn
 
 import pandas as pd
 
-from .derivation import ATTRS_KEY, Derivation, write_atomic
+from .derivation import ATTRS_KEY, TMP_SUFFIX, Derivation, write_atomic
 
 __all__ = ["COMMANDS", "read_frame", "write_frame"]
 
@@ -44,6 +52,8 @@ BATCH_ROWS = 65_536
 #: Findings printed by ``check`` as a table before it says how many more there are.
 SHOW_FINDINGS = 100
 
+#: The file name that means stdin (as input) or stdout (as ``-o``).
+STDIO = "-"
 FORMATS = {".csv": "csv", ".tsv": "csv", ".txt": "csv", ".parquet": "parquet", ".pq": "parquet"}
 COMPRESSED = (".gz", ".bz2", ".zst", ".lz4")
 
@@ -118,17 +128,21 @@ def read_frame(
     "007" would otherwise become numbers)."""
     import pyarrow as pa
 
-    fmt = file_format(path, fmt, "input")
+    fmt = file_format(path, fmt or ("csv" if path == STDIO else None), "input")
     progress = progress or Progress("read", quiet=True)
-    if not os.path.exists(path):
+    # stdin is read whole into memory once (the frame is held in memory anyway): CSV
+    # column checks and Parquet both need to read it more than once.
+    data: Any = io.BytesIO(sys.stdin.buffer.read()) if path == STDIO else None
+    if data is None and not os.path.exists(path):
         raise FileNotFoundError(f"input file {path!r} does not exist")
+    where = "stdin" if data is not None else path
     if fmt == "parquet":
         import pyarrow.parquet as pq
 
-        pf = pq.ParquetFile(path)
+        pf = pq.ParquetFile(data if data is not None else path)
         names = pf.schema_arrow.names
         if columns is not None:
-            _require(names, columns, path)
+            _require(names, columns, where)
         total = pf.metadata.num_rows
         batches, done = [], 0
         for batch in pf.iter_batches(batch_size=BATCH_ROWS, columns=list(columns) if columns is not None else None):
@@ -148,20 +162,22 @@ def read_frame(
         )
         parse = pc.ParseOptions(delimiter=delimiter)
         if columns is not None:  # name a missing column the way derive does
-            with pc.open_csv(path, parse_options=parse) as reader:
-                _require(reader.schema.names, columns, path)
+            with pc.open_csv(data if data is not None else path, parse_options=parse) as reader:
+                _require(reader.schema.names, columns, where)
+            if data is not None:
+                data.seek(0)
         # Rows are known only once parsed (types are inferred over the whole file), so progress
         # while reading a CSV counts the bytes read from the file.
-        size = os.path.getsize(path)
-        with open(path, "rb") as raw:
-            counted = _CountingFile(raw, size, progress, path)
+        size = len(data.getbuffer()) if data is not None else os.path.getsize(path)
+        with (open(path, "rb") if data is None else data) as raw:
+            counted = _CountingFile(raw, size, progress, where)
             source: Any = pa.PythonFile(counted, mode="r")
             codec = _codec(path)
             if codec is not None:
                 source = pa.CompressedInputStream(source, codec)
             table = pc.read_csv(source, parse_options=parse, convert_options=convert)
     frame = table.to_pandas(date_as_object=False)
-    progress.done(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}", len(frame))
+    progress.done(f"read {len(frame):,} rows, {frame.shape[1]} columns from {where}", len(frame))
     return frame
 
 
@@ -211,7 +227,9 @@ def write_frame(
     ``field_metadata`` onto the named columns' fields; CSV has no place for either."""
     import pyarrow as pa
 
-    fmt = file_format(path, fmt, "output")
+    fmt = file_format(path, fmt or ("csv" if path == STDIO else None), "output")
+    if path == STDIO and fmt != "csv":
+        raise UsageError("-o - writes CSV to stdout; Parquet needs a file name")
     progress = progress or Progress("write", quiet=True)
     table = pa.Table.from_pandas(frame)
     if fmt == "parquet":
@@ -230,7 +248,7 @@ def write_frame(
             if pa.types.is_dictionary(field.type):
                 table = table.set_column(i, field.name, table.column(i).cast(field.type.value_type))
 
-    def write(tmp: str) -> None:
+    def write(tmp: Any) -> None:
         done = 0
         step = max(1, min(BATCH_ROWS * 16, PROGRESS_ROWS))
         if fmt == "parquet":
@@ -252,14 +270,70 @@ def write_frame(
                     progress.step("wrote", done, done + part.num_rows, table.num_rows)
                     done += part.num_rows
 
+    if path == STDIO:  # a pipe cannot be replaced atomically: write straight to it
+        sys.stdout.flush()
+        write(sys.stdout.buffer)
+        sys.stdout.buffer.flush()
+        progress.say(f"wrote {table.num_rows:,} rows, {table.num_columns} columns to stdout")
+        return
     existed = os.path.exists(path)
+    _sweep_stale(path)
     try:
-        write_atomic(path, write)
+        with _terminate_cleanly():
+            write_atomic(path, write)
     except OSError as err:
         kept = f"{path} was left as it was" if existed else f"no {path} was made"
         reason = " ".join(str(err.strerror or err).split()) or type(err).__name__
         raise OSError(f"writing {path} failed ({kept}): {reason}") from err
     progress.say(f"wrote {table.num_rows:,} rows, {table.num_columns} columns to {path}")
+
+
+class Terminated(BaseException):
+    """SIGTERM arrived while writing: raised so that the temporary file is removed on the way out."""
+
+
+#: When the current command started: temporary files older than this are left by earlier runs.
+_started = time.time()
+
+
+def _sweep_stale(path: str) -> None:
+    """Remove temporary files an earlier, killed run left beside ``path`` (``kill -9`` cannot be
+    caught): same target name and suffix as :func:`~panelfx.derivation.write_atomic` makes,
+    last written before this run started, so a concurrent writer's live file is not touched."""
+    folder, base = os.path.split(os.path.abspath(path))
+    prefix = f".{base}."
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        if name.startswith(prefix) and name.endswith(TMP_SUFFIX):
+            stale = os.path.join(folder, name)
+            try:
+                if os.stat(stale).st_mtime < _started:
+                    os.remove(stale)
+            except OSError:  # gone already, or not ours to remove
+                pass
+
+
+class _terminate_cleanly:
+    """While writing, SIGTERM raises :class:`Terminated` (the atomic writer then removes its
+    temporary file) instead of killing the process at once; the old handler comes back after."""
+
+    def __enter__(self) -> None:
+        self.old: Any = None
+        try:
+            self.old = signal.signal(signal.SIGTERM, self._raise)
+        except ValueError:  # not the main thread: signals cannot be handled here
+            pass
+
+    @staticmethod
+    def _raise(signum: int, frame: Any) -> None:
+        raise Terminated()
+
+    def __exit__(self, *exc: object) -> None:
+        if self.old is not None:
+            signal.signal(signal.SIGTERM, self.old)
 
 
 def _dumps(value: Any) -> bytes:
@@ -283,7 +357,7 @@ def _check(argv: list[str]) -> int:
 
     parser = _Parser(prog="panelfx check", description="Print the structure report of a long-format panel file "
                      "(exit code 1 when fatal problems are found).")
-    parser.add_argument("input", help="CSV or Parquet file, one row per subject per occasion")
+    parser.add_argument("input", help="CSV or Parquet file, one row per subject per occasion; - reads CSV from stdin")
     parser.add_argument("--id", action="append", required=True, metavar="COL",
                         help="subject id column; repeat for several (e.g. --id site --id subject)")
     parser.add_argument("--time", required=True, metavar="COL", help="occasion time column (numbers or dates)")
@@ -305,7 +379,7 @@ def _check(argv: list[str]) -> int:
                    spacing=args.spacing, tolerance=args.tolerance, notes=args.notes, order=args.order)
     fatal = int((report["severity"] == "fatal").sum())
     if args.csv:
-        report.to_csv(sys.stdout, index=False)
+        _split_ids(report, args.id).to_csv(sys.stdout, index=False)
     elif report.empty:
         print(f"no structural problems found in {args.input} ({len(frame):,} rows)")
     else:
@@ -317,6 +391,20 @@ def _check(argv: list[str]) -> int:
             print(f"... and {len(report) - SHOW_FINDINGS:,} more (--csv prints every finding)")
         print("row is the 0-based position of the data row in the file")
     return 1 if fatal else 0
+
+
+def _split_ids(report: pd.DataFrame, id_cols: Sequence[str]) -> pd.DataFrame:
+    """Composite ids as one CSV column per id column (named after it) in place of the tuple
+    column ``id``; a name the report already uses gets an ``id_`` prefix."""
+    if len(id_cols) == 1:
+        return report
+    at = report.columns.get_loc("id")
+    parts = {}
+    for k, col in enumerate(id_cols):
+        name = col if col not in report.columns else f"id_{col}"
+        parts[name] = [v[k] if isinstance(v, tuple) else None for v in report["id"]]
+    split = pd.DataFrame(parts, index=report.index, dtype=object)
+    return pd.concat([report.iloc[:, :at], split, report.iloc[:, at + 1:]], axis=1)
 
 
 def _table_option(parser: argparse.ArgumentParser) -> None:
@@ -363,8 +451,8 @@ def _apply(argv: list[str]) -> int:
     parser = _Parser(prog="panelfx apply", description="Apply a saved derivation to a CSV or Parquet file and "
                      "write the result (Parquet keeps the derivation and its data dictionary in its metadata).")
     parser.add_argument("derivation", help="saved derivation (JSON, from Derivation.save)")
-    parser.add_argument("input", help="CSV or Parquet file")
-    parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv")
+    parser.add_argument("input", help="CSV or Parquet file; - reads CSV from stdin")
+    parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv; - writes CSV to stdout")
     parser.add_argument("--output-format", choices=["csv", "parquet"])
     _table_option(parser)
     _input_options(parser, quiet="no progress or summary on stderr")
@@ -372,12 +460,18 @@ def _apply(argv: list[str]) -> int:
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
     derivation = Derivation.load(args.derivation)
-    file_format(args.input, args.input_format, "input")
-    file_format(args.output, args.output_format, "output")
+    file_format(args.input, args.input_format or ("csv" if args.input == STDIO else None), "input")
+    file_format(args.output, args.output_format or ("csv" if args.output == STDIO else None), "output")
+    if args.output == STDIO and args.output_format == "parquet":
+        raise UsageError("-o - writes CSV to stdout; Parquet needs a file name")
     folder = os.path.dirname(os.path.abspath(args.output))
-    if not os.path.isdir(folder):
+    if args.output != STDIO and not os.path.isdir(folder):
         raise FileNotFoundError(f"output folder {folder!r} does not exist")
-    if file_format(args.input, args.input_format, "input") == "parquet" and os.path.exists(args.input):
+    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
+                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
+                                       for spec in args.table}})
+    if args.input != STDIO and file_format(args.input, args.input_format, "input") == "parquet" \
+            and os.path.exists(args.input):
         import pyarrow.parquet as pq
 
         _require(pq.read_schema(args.input).names, [*derivation.id_cols, derivation.time, *derivation.inputs()],
@@ -386,13 +480,28 @@ def _apply(argv: list[str]) -> int:
     frame = read_frame(args.input, args.input_format, text_columns=args.text, progress=progress)
     result = derivation.apply(frame, tables)
     progress.say(f"derived {len(derivation.outputs())} column(s): {', '.join(derivation.outputs())}")
-    record = {**result.attrs[ATTRS_KEY], "input": os.path.basename(args.input)}
+    record = {**result.attrs[ATTRS_KEY], "input": "stdin" if args.input == STDIO else os.path.basename(args.input)}
     if tables:
         record["tables"] = {name: os.path.basename(path) for name, path in
                             (spec.partition("=")[::2] for spec in args.table)}
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
     write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
     return 0
+
+
+def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
+    """Refuse an output that is one of the files the run reads (same file, however named):
+    writing it would destroy the data the result comes from."""
+    for what, path in sources.items():
+        if STDIO in (output, path):  # stdin / stdout, not files
+            continue
+        try:
+            same = os.path.samefile(output, path)  # compares device and inode: links and ../ spellings too
+        except OSError:  # one of them does not exist (yet): they cannot be the same file
+            continue
+        if same:
+            raise UsageError(f"-o {output} is the {what} file {path}: refusing to overwrite it; "
+                             "write the result to another file")
 
 
 def _dictionary(argv: list[str]) -> int:
@@ -431,10 +540,19 @@ def _run(name: str, command: Callable[[list[str]], int]) -> Callable[[list[str]]
     """Wrap a command: errors become one line on stderr and exit code 2."""
 
     def run(argv: list[str]) -> int:
+        global _started
+        _started = time.time()
         try:
-            return command(list(argv))
+            code = command(list(argv))
+            sys.stdout.flush()  # a closed pipe shows here, not at exit where it would print a message
+            return code
+        except BrokenPipeError:
+            return _stdout_closed()
         except SystemExit as stop:  # --help
             return stop.code if isinstance(stop.code, int) else 0
+        except Terminated:  # the temporary file is gone; 128 + 15 as the shell reports SIGTERM
+            print(f"panelfx {name}: terminated before the output was complete; nothing was written", file=sys.stderr)
+            return 128 + signal.SIGTERM
         except KeyboardInterrupt:
             print(f"panelfx {name}: interrupted", file=sys.stderr)
             return 130
@@ -445,6 +563,19 @@ def _run(name: str, command: Callable[[list[str]], int]) -> Callable[[list[str]]
     run.__name__ = f"{name}_command"
     run.__doc__ = command.__doc__
     return run
+
+
+def _stdout_closed() -> int:
+    """The reader of stdout went away (``| head``): stop quietly with 128 + SIGPIPE, as the
+    shell reports for other tools cut short.  stdout is pointed at the null device so that
+    Python's final flush at exit does not complain again."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):
+        pass
+    return 128 + 13
 
 
 def _one_line(err: BaseException) -> str:

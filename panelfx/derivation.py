@@ -614,6 +614,11 @@ def _write_text(path: str, text: str) -> None:
         fh.write(text)
 
 
+#: Suffix of the temporary files :func:`write_atomic` makes (``.<target name>.<random>`` + this),
+#: by which the command line recognises and sweeps the leftovers of a killed run.
+TMP_SUFFIX = ".panelfx-tmp"
+
+
 def write_atomic(path: str | os.PathLike[str], write: Any) -> None:
     """Call ``write(tmp)`` on a temporary file beside ``path``, then rename it over ``path``.
 
@@ -622,7 +627,7 @@ def write_atomic(path: str | os.PathLike[str], write: Any) -> None:
     """
     target = os.path.abspath(os.fspath(path))
     folder, base = os.path.split(target)
-    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=".panelfx-tmp", dir=folder)
+    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=TMP_SUFFIX, dir=folder)
     os.close(fd)
     try:
         write(tmp)

@@ -30,6 +30,7 @@ __all__ = [
     "IntervalError",
     "FollowUpError",
     "UnknownSubjectError",
+    "UnknownOptionError",
 ]
 
 #: How many offending ids an error message shows.
@@ -125,6 +126,16 @@ class FollowUpError(PanelError, ValueError):
 
 class UnknownSubjectError(PanelError, ValueError):
     """A side table names subjects that are not in the frame."""
+
+
+class UnknownOptionError(PanelError, TypeError):
+    """A function was called with an option name it does not have (``rolling(window=3)``);
+    the message suggests the option probably meant (``occasions=`` or ``span=``)."""
+
+    def __init__(self, message: str, *, option: str, suggestions: Sequence[str] = ()) -> None:
+        super().__init__(message)
+        self.option = option
+        self.suggestions = list(suggestions)
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -137,7 +137,7 @@ class Windows:
 
     def __repr__(self) -> str:
         extra = f", overlap={self.overlap!r}" if self.overlap != "none" else ""
-        return f"windows({self.rows()!r}{extra})"
+        return f"pfx.windows({self.rows()!r}{extra})"  # the call, as transforms show theirs
 
 
 def windows(rows: Iterable[Sequence[Any]] | pd.DataFrame | Windows, *,

@@ -334,3 +334,160 @@ def test_check_with_an_order_column(files, capsys):
     capsys.readouterr()
     assert main(["check", "tied.csv", "--id", "pid", "--time", "hour", "--order", "seq", "-q"]) == 0
     assert capsys.readouterr().out.startswith("no structural problems")
+
+
+# ------------------------------------------------------------------------------ faults (issue 17)
+
+
+def test_output_onto_an_input_is_refused(tmp_path):
+    """-o naming the input or the derivation itself (also through a link or another spelling of
+    the path) is refused with exit code 2 before anything is read or written: it would destroy
+    the data the result comes from."""
+    _cohort().to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    (tmp_path / "sub").mkdir()
+    os.link(tmp_path / "visits.csv", tmp_path / "sub" / "hard.csv")
+    before = {p: p.read_bytes() for p in (tmp_path / "visits.csv", tmp_path / "d.json")}
+    for output, what in [("visits.csv", "input"), ("./sub/../visits.csv", "input"), ("sub/hard.csv", "input"),
+                         ("d.json", "derivation")]:
+        run = _run("apply", "d.json", "visits.csv", "-o", output, "--output-format", "csv", cwd=tmp_path)
+        assert run.returncode == 2, (output, run.stderr)
+        assert run.stderr.strip().splitlines() == [
+            f"panelfx apply: error: -o {output} is the {what} file "
+            f"{'visits.csv' if what == 'input' else 'd.json'}: refusing to overwrite it; "
+            "write the result to another file"], run.stderr
+        assert {p: p.read_bytes() for p in before} == before
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "sub", "visits.csv"]
+
+
+_SLOW_WRITE = textwrap.dedent("""
+    import sys, time
+    import pyarrow.parquet as pq
+    from panelfx.__main__ import main
+
+    class Slow(pq.ParquetWriter):  # each slice takes a while, so the run is killed half-way
+        def write_table(self, table, *a, **k):
+            super().write_table(table, *a, **k)
+            print("slice", flush=True)
+            time.sleep(30)
+
+    pq.ParquetWriter = Slow
+    sys.exit(main(sys.argv[1:]))
+""")
+
+
+@pytest.mark.skipif(not hasattr(os, "kill") or sys.platform == "win32", reason="needs POSIX signals")
+def test_killed_run_leaves_no_temporary_file(tmp_path):
+    """SIGTERM half-way through the write: the temporary file is removed, the earlier output is
+    untouched, exit code 143 (128 + SIGTERM). A temporary file left by a run killed outright
+    (SIGKILL cannot be caught) is swept by the next run."""
+    import signal
+
+    _cohort().to_parquet(tmp_path / "visits.parquet")
+    DERIVATION.save(tmp_path / "d.json")
+    (tmp_path / "out.parquet").write_bytes(b"earlier output")
+    env = {**os.environ, "PYTHONDONTWRITEBYTECODE": "1"}
+
+    def start() -> subprocess.Popen:
+        child = subprocess.Popen([sys.executable, "-c", _SLOW_WRITE, "apply", "d.json", "visits.parquet", "-o",
+                                  "out.parquet", "-q"], cwd=tmp_path, env=env, stdout=subprocess.PIPE,
+                                 stderr=subprocess.PIPE, text=True)
+        assert child.stdout is not None and child.stdout.readline() == "slice\n"  # half-way through the write
+        assert [n for n in os.listdir(tmp_path) if n.endswith(".panelfx-tmp")]
+        return child
+
+    child = start()
+    child.send_signal(signal.SIGTERM)
+    out, err = child.communicate(timeout=60)
+    assert child.returncode == 143, err
+    assert err.strip().splitlines() == ["panelfx apply: terminated before the output was complete; "
+                                        "nothing was written"]
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "out.parquet", "visits.parquet"]
+    assert (tmp_path / "out.parquet").read_bytes() == b"earlier output"
+
+    child = start()
+    child.kill()  # SIGKILL: the temporary file stays behind ...
+    child.communicate(timeout=60)
+    left = [n for n in os.listdir(tmp_path) if n.endswith(".panelfx-tmp")]
+    assert len(left) == 1 and left[0].startswith(".out.parquet.")
+    (tmp_path / ".other.parquet.x.panelfx-tmp").write_bytes(b"")  # another target's: not swept
+    run = _run("apply", "d.json", "visits.parquet", "-o", "out.parquet", "-q", cwd=tmp_path)
+    assert run.returncode == 0, run.stderr  # ... until the next run sweeps it
+    assert sorted(os.listdir(tmp_path)) == [".other.parquet.x.panelfx-tmp", "d.json", "out.parquet",
+                                            "visits.parquet"]
+    pd.testing.assert_frame_equal(pd.read_parquet(tmp_path / "out.parquet"), DERIVATION.apply(_cohort()))
+
+
+def _into_closed_pipe(*args: str, cwd, stdin: bytes | None = None) -> subprocess.CompletedProcess:
+    """Run the real entry point with stdout a pipe whose reader is already gone (as after
+    ``| head`` has read its lines): every write to stdout fails with EPIPE."""
+    read, write = os.pipe()
+    os.close(read)
+    try:
+        env = {**os.environ, "PYTHONDONTWRITEBYTECODE": "1"}
+        return subprocess.run([sys.executable, "-m", "panelfx", *args], stdout=write, stderr=subprocess.PIPE,
+                              input=stdin, cwd=cwd, env=env, timeout=120)
+    finally:
+        os.close(write)
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="POSIX pipes")
+@pytest.mark.parametrize("args", [
+    ["check", "visits.csv", "--id", "pid", "--time", "day", "--spacing", "7", "--csv", "-q"],
+    ["check", "visits.csv", "--id", "pid", "--time", "day", "--spacing", "7"],
+    ["dictionary", "d.json"],
+    ["dictionary", "d.json", "--csv"],
+    ["apply", "d.json", "visits.csv", "-o", "-", "-q"],
+])
+def test_closed_stdout_exits_quietly(tmp_path, args):
+    """``| head``: the reader of stdout goes away; the command stops with exit code 141
+    (128 + SIGPIPE, what the shell reports for tools killed by a closed pipe) and says nothing
+    on stderr: no traceback, no 'Broken pipe', no error line."""
+    _cohort(50).to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    run = _into_closed_pipe(*args, cwd=tmp_path)
+    assert run.returncode == 141, run.stderr
+    assert run.stderr == b""
+
+
+def test_stdin_and_stdout(tmp_path):
+    """``-`` as input reads CSV from stdin and ``-o -`` writes CSV to stdout: the same values as
+    through files; progress stays on stderr; Parquet to stdout is refused."""
+    _cohort().to_csv(tmp_path / "visits.csv", index=False)
+    DERIVATION.save(tmp_path / "d.json")
+    text = (tmp_path / "visits.csv").read_text()
+    run = _run("apply", "d.json", "-", "-o", "-", input=text, cwd=tmp_path)
+    assert run.returncode == 0, run.stderr
+    assert run.stderr.splitlines()[0] == "panelfx apply: read 12 rows, 4 columns from stdin"
+    assert run.stderr.splitlines()[-1] == "panelfx apply: wrote 12 rows, 9 columns to stdout"
+    assert _run("apply", "d.json", "visits.csv", "-o", "file.csv", "-q", cwd=tmp_path).returncode == 0
+    assert run.stdout == (tmp_path / "file.csv").read_text()
+    import io
+
+    got = pd.read_csv(io.StringIO(run.stdout))
+    expected = DERIVATION.apply(_cohort())
+    pd.testing.assert_frame_equal(got.drop(columns="visit"), expected.drop(columns="visit"), check_dtype=False)
+
+    run = _run("check", "-", "--id", "pid", "--time", "day", "--spacing", "30", input=text, cwd=tmp_path)
+    assert run.returncode == 0 and run.stdout.startswith("no structural problems found in - (12 rows)"), run.stderr
+    run = _run("apply", "d.json", "visits.csv", "-o", "-", "--output-format", "parquet", cwd=tmp_path)
+    assert run.returncode == 2 and run.stdout == ""
+    assert run.stderr.strip() == "panelfx apply: error: -o - writes CSV to stdout; Parquet needs a file name"
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "file.csv", "visits.csv"]
+
+
+def test_check_csv_splits_composite_ids(files, capsys):
+    """Several --id columns: the CSV report has one column per id column (named after it,
+    ``id_`` in front of a name the report already uses), not the text of a Python tuple."""
+    df = _cohort().assign(site=["007"] * 6 + ["7"] * 6, pid=[1, 1, 1, 2, 2, 2] * 2)
+    df.loc[1, "day"] = 0  # a duplicate visit of site 007, subject 1
+    df.rename(columns={"pid": "row"}).to_csv("sites.csv", index=False)
+    assert main(["check", "sites.csv", "--id", "site", "--id", "row", "--time", "day", "--text", "site",
+                 "--csv", "-q"]) == 1
+    out = capsys.readouterr().out
+    import io
+
+    report = pd.read_csv(io.StringIO(out), dtype={"site": str})
+    assert list(report.columns) == ["problem", "severity", "site", "id_row", "row", "time", "detail"]
+    assert report[["problem", "site", "id_row", "row", "time"]].values.tolist() == [
+        ["duplicate", "007", 1, 0, 0], ["duplicate", "007", 1, 1, 0]]

@@ -114,7 +114,7 @@ def test_immutable_hashable_and_equal():
     same = pfx.Derivation([pfx.lag("sbp")], id=("site", "pid"), time="day", description="invented")
     assert d == same and hash(d) == hash(same)
     assert d != pfx.Derivation(pfx.lag("sbp", 2), id=["site", "pid"], time="day", description="invented")
-    assert "Lag(col='sbp'" in repr(d)
+    assert "transforms=(pfx.lag('sbp'),)" in repr(d)
 
 
 def test_extend_composes():

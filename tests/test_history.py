@@ -167,6 +167,6 @@ def test_reference_must_fit_time_and_be_constant():
 def test_transforms_are_frozen_values():
     a, b = pfx.change_from_baseline("y", "percent"), pfx.change_from_baseline("y", "percent")
     assert a == b and hash(a) == hash(b)
-    assert "kind='percent'" in repr(a)
+    assert repr(a) == "pfx.change_from_baseline('y', 'percent')"
     with pytest.raises(AttributeError):
         a.col = "z"  # type: ignore[misc]

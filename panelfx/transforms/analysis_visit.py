@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from .. import _visits as V
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
 from ..errors import OptionError
@@ -60,6 +61,9 @@ class AnalysisVisit(Transform):
         """The windows as a :class:`~panelfx.visit_windows.Windows` value."""
         return Windows(self.windows, self.overlap)
 
+    def _call_values(self) -> dict[str, Any]:
+        return {"windows": Windows(self.windows, self.overlap)}  # the constructor takes both as one
+
     def inputs(self) -> tuple[str, ...]:
         return () if self.day is None else (self.day,)
 
@@ -100,6 +104,7 @@ class AnalysisVisit(Transform):
         return [visit, np.where(ok, number, np.nan), target, dist]
 
 
+@checked_options
 def analysis_visit(
     windows: Windows | Sequence[Sequence[Any]],
     *,

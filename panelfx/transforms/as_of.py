@@ -9,6 +9,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._tables import SideTake, SideView, TableUse, check_table_name
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
@@ -416,6 +417,7 @@ def _refuse_conflicts(view: SideView, col: str, considered: np.ndarray, shared: 
             column=f"{view.name}.{col}", count=int(bad.sum()), ids=ids)
 
 
+@checked_options
 def as_of(
     table: str,
     col: str | Sequence[str] | None = None,

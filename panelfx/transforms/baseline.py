@@ -7,6 +7,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .._columns import Take
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
 from ._common import baseline_index, check_rule, check_where, reference_columns, rule_words, where_words, with_where
@@ -48,6 +49,7 @@ class Baseline(Transform):
         return [Take(self.col, baseline_index(panel, self.col, self.rule, self.reference, self.where))]
 
 
+@checked_options
 def baseline(
     col: str,
     rule: str = "first_valid",

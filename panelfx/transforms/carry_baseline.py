@@ -9,6 +9,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .._columns import Take
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_column_name, check_name
 from ._common import baseline_index, check_rule, reference_columns, rule_words
@@ -61,6 +62,7 @@ class CarryBaseline(Transform):
         return [Take(self.col, src)]
 
 
+@checked_options
 def carry_baseline(
     col: str,
     rule: Literal["first_valid", "first", "last_before"] = "first_valid",

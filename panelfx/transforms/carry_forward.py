@@ -10,6 +10,7 @@ import numpy as np
 
 from .. import _kernels as K
 from .._columns import Take
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_column_name, check_int, check_name
 from ._common import check_where, sources, where_words, with_where
@@ -77,6 +78,7 @@ class CarryForward(Transform):
         return [Take(self.col, rows)]
 
 
+@checked_options
 def carry_forward(
     col: str,
     *,

@@ -9,6 +9,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .._columns import Take
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ..errors import OptionError
@@ -74,6 +75,7 @@ class CarryWorst(Transform):
         return [Take(self.col, out)]
 
 
+@checked_options
 def carry_worst(
     col: str,
     worst: Literal["max", "min"],

@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ._common import baseline_index, check_rule, difference, reference_columns, relative_change, rule_words
@@ -66,6 +67,7 @@ class ChangeFromBaseline(Transform):
         return [out]
 
 
+@checked_options
 def change_from_baseline(
     col: str,
     kind: str = "difference",

@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ._common import difference, relative_change
@@ -72,6 +73,7 @@ class ChangeFromPrevious(Transform):
         return [relative_change(y, y_prev, self.kind)]
 
 
+@checked_options
 def change_from_previous(
     col: str,
     kind: str = "difference",

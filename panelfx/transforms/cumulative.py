@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name, check_name
 from ._common import check_where, sources, where_words, with_where
@@ -111,6 +112,7 @@ class Cumulative(Transform):
         return [out]
 
 
+@checked_options
 def cumulative(
     col: str,
     method: str = "sum",

@@ -8,6 +8,7 @@ from typing import Any, Literal
 
 import numpy as np
 
+from .._options import checked_options
 from .._panel import Panel
 from .._tables import NativeTimes, SideTake, TableUse, check_table_name
 from .._time import INT_MAX
@@ -123,6 +124,7 @@ class LastDose(Transform):
         return [NativeTimes(view.axis, np.where(missing, 0, per_row).astype(view.qt.dtype), missing)]
 
 
+@checked_options
 def first_dose(table: str, *, start: str, name: str | None = None) -> FirstDose:
     """The subject's earliest ``start`` in side table ``table`` (a dosing table), on every row.
 
@@ -144,6 +146,7 @@ def first_dose(table: str, *, start: str, name: str | None = None) -> FirstDose:
     return FirstDose(table=table, start=start, name=name)
 
 
+@checked_options
 def last_dose(table: str, *, start: str, end: str | None = None, supply: str | None = None,
               open_end: Literal["error", "until_time"] = "error", name: str | None = None) -> LastDose:
     """The subject's latest end of dosing in side table ``table`` (the last dosing day), on every row.

@@ -6,6 +6,7 @@ import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
+from .._options import checked_options
 from .._panel import Panel
 from ._common import FlagHistory, flag_words
 
@@ -27,6 +28,7 @@ class EventsSoFar(FlagHistory):
         return [self.counts(panel)]
 
 
+@checked_options
 def events_so_far(col: str, *, include_current: bool = True, any_nonzero: bool = False, where: str | None = None,
                   name: str | None = None) -> EventsSoFar:
     """How many of the subject's occasions up to the current one have ``col`` true.

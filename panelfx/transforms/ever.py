@@ -6,6 +6,7 @@ import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
+from .._options import checked_options
 from .._panel import Panel
 from ._common import FlagHistory, flag_words
 
@@ -27,6 +28,7 @@ class Ever(FlagHistory):
         return [self.counts(panel) > 0]
 
 
+@checked_options
 def ever(col: str, *, include_current: bool = True, any_nonzero: bool = False, where: str | None = None,
          name: str | None = None) -> Ever:
     """Ever/never flag: True from the subject's first occasion with ``col`` true onwards.

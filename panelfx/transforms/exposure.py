@@ -10,6 +10,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._subjects import Subjects
 from .._tables import SideView, TableUse, check_table_name, day_ticks, float_key, safe_label
@@ -88,7 +89,11 @@ class Exposure(Transform):
 
     @property
     def past_only(self) -> bool:
-        return True
+        # Counting the whole day of t (inclusive days, current day included) takes in records
+        # that start later that day: with times of day that is the future, so it is not
+        # claimed.  The day before (include_current=False) or inclusive=False are past-only.
+        whole_day = self.inclusive and self.include_current and self.stat in ("cumulative", "days_on", "intensity")
+        return not whole_day
 
     def describe(self) -> str:
         when = "t" if self.lag is None else f"t - {span_words(self.lag)}"
@@ -391,6 +396,7 @@ def _exact_rates(rate: np.ndarray) -> tuple[np.ndarray, int]:
     return np.rint(rate * scale).astype(np.int64), scale
 
 
+@checked_options
 def exposure(
     table: str,
     *,
@@ -431,7 +437,12 @@ def exposure(
     A record without an end is an error, or with ``open_end="until_time"`` runs on.
     ``lag`` computes the exposure as of t - lag (latency).  Subjects without records
     have 0 (never on treatment); a missing dose makes the totals from its start on (and
-    the current dose while it runs) missing.  Past-only.  Default name:
+    the current dose while it runs) missing.  Past-only, except "cumulative", "days_on" and
+    "intensity" with inclusive days and the current day included (the defaults): they count
+    the whole day of t, so a record starting later that day counts, which with times of day
+    is the future; with whole-day times nothing later than t is used, but the claim is not
+    made.  ``include_current=False`` (up to the day before) or ``inclusive=False`` are
+    past-only.  Default name:
     ``<dose or table>_<stat>``, ``_lag<span>`` added with ``lag``.
 
     >>> import pandas as pd, panelfx as pfx

@@ -7,6 +7,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import OccasionHelper
 
@@ -27,6 +28,7 @@ class Gap(OccasionHelper):
         return [panel.elapsed_since(K.shift_index(panel.subjects, 1))]
 
 
+@checked_options
 def gap(*, name: str | None = None) -> Gap:
     """The time since the subject's previous occasion.
 

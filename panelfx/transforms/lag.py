@@ -10,6 +10,7 @@ import numpy as np
 
 from .. import _kernels as K
 from .._columns import Take
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_column_name, check_int, check_name
 from ..errors import OptionError
@@ -107,6 +108,7 @@ class Lag(Transform):
         return [Take(self.col, src)]
 
 
+@checked_options
 def lag(
     col: str,
     periods: int | None = None,

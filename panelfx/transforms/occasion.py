@@ -6,6 +6,7 @@ import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import OccasionHelper
 
@@ -29,6 +30,7 @@ class Occasion(OccasionHelper):
         return [panel.subjects.pos + 1]
 
 
+@checked_options
 def occasion(*, name: str | None = None) -> Occasion:
     """The occasion number within the subject: 1 at its first occasion, then 2, 3, ...
 

@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 
 from .. import _windows as W
+from .._options import checked_options
 from .._panel import Panel
 from .._subjects import Subjects
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_int, check_name
@@ -153,6 +154,7 @@ class Rolling(Transform):
         return np.sqrt(out) if stat == "std" else out
 
 
+@checked_options
 def rolling(
     col: str,
     stat: str = "mean",

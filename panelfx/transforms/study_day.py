@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from .. import _visits as V
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name, check_name
 from ..errors import ColumnTypeError, TimeTypeError, rows_message
@@ -89,6 +90,7 @@ class StudyDay(Transform):
         return [out]
 
 
+@checked_options
 def study_day(
     reference: str,
     convention: Literal["no_day_0", "offset"] = "no_day_0",

@@ -9,6 +9,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .. import _windows as W
+from .._options import checked_options
 from .._panel import Panel
 from .._tables import Flags, TableUse, check_table_name, safe_label
 from .._transform import Transform, check_choice, check_column_name, check_int, check_name
@@ -163,6 +164,7 @@ def _count(b: W.Bounds, mask: np.ndarray, m: int) -> np.ndarray:
     return W.count(b, mask)
 
 
+@checked_options
 def table_window(
     table: str,
     col: str | None = None,

@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from .. import _kernels as K
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ._common import check_where, event_flags, flag_words, with_where
@@ -73,6 +74,7 @@ class TimeSince(Transform):
         return [panel.elapsed_since(src)]
 
 
+@checked_options
 def time_since(
     col: str,
     which: str = "last",

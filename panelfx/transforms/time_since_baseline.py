@@ -6,6 +6,7 @@ import dataclasses
 from collections.abc import Sequence
 from typing import Any
 
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import OccasionHelper
 
@@ -26,6 +27,7 @@ class TimeSinceBaseline(OccasionHelper):
         return [panel.elapsed_since(panel.subjects.first)]
 
 
+@checked_options
 def time_since_baseline(*, name: str | None = None) -> TimeSinceBaseline:
     """The time since the subject's first occasion (its baseline occasion): 0 there.
 

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from .. import _visits as V
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name, check_name
 from ..errors import OptionError
@@ -108,6 +109,7 @@ def pick_mask(panel: Panel, tr: VisitPick, visit: pd.Series, day: np.ndarray | N
     return V.pick(panel.subjects, visit_codes(panel, visit), eligible, tr.rule, tr.prefer, value, day, target)
 
 
+@checked_options
 def visit_pick(
     col: str,
     rule: Literal["nearest", "first", "last", "max", "min", "last_on_or_before_target"],

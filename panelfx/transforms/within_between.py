@@ -13,6 +13,7 @@ import pandas as pd
 
 from .. import _kernels as K
 from .._nesting import CODES, check_levels, level_codes
+from .._options import checked_options
 from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name
 from ..errors import NestingError, OptionError, rows_message
@@ -159,6 +160,7 @@ def _means(y: np.ndarray, use: np.ndarray, code: np.ndarray, k: int) -> np.ndarr
     return m + fix
 
 
+@checked_options
 def within_between(
     col: str,
     level: str = "mean",
