@@ -116,8 +116,8 @@ def derive(
     validated and ordered once for all transforms.
 
     ``threads``: transforms that do not read each other's outputs run side by side on this
-    many threads (default: the machine's cores, at most 2; 1 for strictly one).  The
-    results are the same bit for bit whatever the number.
+    many threads (default 1: on the benchmark two threads did not pay off).  The results
+    are the same bit for bit whatever the number.
 
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
@@ -142,9 +142,20 @@ def derive(
     new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
-    # One concatenation (a column at a time fragments the frame); concat copies, so the input
-    # is never modified.
-    added = pd.DataFrame({k: v.array for k, v in new.items()}, index=frame.index)
+    # One concatenation (a column at a time fragments the frame).  The derived arrays are our
+    # own, so they go in without a copy; the input's columns are copied by concat on pandas 2,
+    # and shared copy-on-write on pandas 3: either way the input is never modified.
+    arrays: dict[str, Any] = {}
+    plain: list[np.ndarray] = []
+    for k, v in new.items():  # two outputs never share memory (they go in without a copy)
+        a = v.array
+        if isinstance(v.dtype, np.dtype):
+            raw = v.to_numpy()
+            if any(np.may_share_memory(raw, other) for other in plain):
+                a = raw.copy()
+            plain.append(raw)
+        arrays[k] = a
+    added = pd.DataFrame(arrays, index=frame.index, copy=False)
     return pd.concat([frame, added], axis=1) if new else frame.copy()
 
 
@@ -222,9 +233,10 @@ def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
 
 
 def _threads(threads: int | None) -> int:
-    """Threads to use: ``None`` for the machine's cores, at most 2 (what the kernels gain from); 1 for one."""
+    """Threads to use: ``None`` for the default, 1 (on the benchmark two threads were slower
+    than one for the shuffled job: see benchmarks/README.md)."""
     if threads is None:
-        return min(2, os.cpu_count() or 1)
+        return 1
     if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
         raise OptionError(f"threads must be a positive integer or None, got {threads!r}")
     return threads
