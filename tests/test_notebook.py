@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import re
-from pathlib import Path
 
 import pytest
 
@@ -13,45 +12,26 @@ pytest.importorskip("ipykernel")
 pytest.importorskip("statsmodels")
 pytest.importorskip("matplotlib")
 
-NOTEBOOKS = Path(__file__).resolve().parent.parent / "notebooks"
+from notebook_kit import NOTEBOOKS, check_stored_clean, execute, output_text  # noqa: E402
+
 WALKTHROUGH = NOTEBOOKS / "walkthrough.ipynb"
 
 
-def _text(cell) -> str:
-    parts = []
-    for out in cell.get("outputs", []):
-        if out["output_type"] == "stream":
-            parts.append(out["text"])
-        elif out["output_type"] in ("execute_result", "display_data"):
-            parts.append(out["data"].get("text/plain", ""))
-    return "".join(parts)
-
-
 def test_notebook_is_stored_without_outputs():
-    nb = nbformat.read(WALKTHROUGH, as_version=4)
-    nbformat.validate(nb)
-    code = [c for c in nb.cells if c.cell_type == "code"]
+    code = check_stored_clean(WALKTHROUGH, ("pfx.Derivation(", ".save(", "Derivation.load("))
     assert len(code) >= 8
-    assert all(c.outputs == [] and c.execution_count is None for c in code)
-    assert "invented" in nb.cells[0].source.lower()
-    source = "\n".join(c.source for c in code)
-    assert "pfx.Derivation(" in source and ".save(" in source and "Derivation.load(" in source
 
 
 @pytest.fixture(scope="module")
 def executed():
-    nb = nbformat.read(WALKTHROUGH, as_version=4)
-    client = nbclient.NotebookClient(nb, timeout=300, kernel_name="python3",
-                                     resources={"metadata": {"path": str(NOTEBOOKS)}})
-    client.execute()  # raises CellExecutionError on the first failing cell
-    return nb
+    return execute(WALKTHROUGH)
 
 
 def test_notebook_runs_without_error(executed):
     code = [c for c in executed.cells if c.cell_type == "code"]
     assert all(c.execution_count is not None for c in code)
     assert not [o for c in code for o in c.outputs if o["output_type"] == "error"]
-    text = "".join(_text(c) for c in code)
+    text = "".join(output_text(c) for c in code)
     assert "INVENTED DATA" in text
     for problem in ("missed", "late", "early"):
         assert problem in text
@@ -60,7 +40,7 @@ def test_notebook_runs_without_error(executed):
 
 
 def test_notebook_recovers_the_true_effects(executed):
-    text = "".join(_text(c) for c in executed.cells if c.cell_type == "code")
+    text = "".join(output_text(c) for c in executed.cells if c.cell_type == "code")
     found = {m.group(1): float(m.group(2)) for m in
              re.finditer(r"^(within effect, mixed model|between effect, mixed model|within effect, GEE): "
                          r"(-?\d+\.\d+) \(truth", text, flags=re.M)}

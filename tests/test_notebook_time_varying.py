@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-import os
 import re
-from pathlib import Path
 
 import pytest
 
@@ -13,50 +11,19 @@ nbclient = pytest.importorskip("nbclient")
 pytest.importorskip("ipykernel")
 pytest.importorskip("statsmodels")
 
-ROOT = Path(__file__).resolve().parent.parent
-NOTEBOOKS = ROOT / "notebooks"
+from notebook_kit import NOTEBOOKS, check_stored_clean, execute, output_text  # noqa: E402
+
 NOTEBOOK = NOTEBOOKS / "time_varying.ipynb"
 
 
-def _text(cell) -> str:
-    parts = []
-    for out in cell.get("outputs", []):
-        if out["output_type"] == "stream":
-            parts.append(out["text"])
-        elif out["output_type"] in ("execute_result", "display_data"):
-            parts.append(out["data"].get("text/plain", ""))
-    return "".join(parts)
-
-
 def test_notebook_is_stored_without_outputs():
-    nb = nbformat.read(NOTEBOOK, as_version=4)
-    nbformat.validate(nb)
-    code = [c for c in nb.cells if c.cell_type == "code"]
-    assert all(c.outputs == [] and c.execution_count is None for c in code)
-    assert "invented" in nb.cells[0].source.lower()
-    source = "\n".join(c.source for c in code)
-    for call in ("pfx.episodes(", "pfx.person_time(", "pfx.snapshot(", "PHReg(", "sm.GLM("):
-        assert call in source
+    check_stored_clean(NOTEBOOK, ("pfx.episodes(", "pfx.person_time(", "pfx.snapshot(", "PHReg(", "sm.GLM("))
 
 
 @pytest.fixture(scope="module")
 def text():
-    nb = nbformat.read(NOTEBOOK, as_version=4)
-    client = nbclient.NotebookClient(nb, timeout=300, kernel_name="python3",
-                                     resources={"metadata": {"path": str(NOTEBOOKS)}})
-    # the kernel imports the panelfx under test (this checkout), whatever is installed
-    before = os.environ.get("PYTHONPATH")
-    os.environ["PYTHONPATH"] = os.pathsep.join([str(ROOT), *([before] if before else [])])
-    try:
-        client.execute()  # raises CellExecutionError on the first failing cell
-    finally:
-        if before is None:
-            del os.environ["PYTHONPATH"]
-        else:
-            os.environ["PYTHONPATH"] = before
-    code = [c for c in nb.cells if c.cell_type == "code"]
-    assert not [o for c in code for o in c.outputs if o["output_type"] == "error"]
-    return "".join(_text(c) for c in code)
+    nb = execute(NOTEBOOK)
+    return "".join(output_text(c) for c in nb.cells if c.cell_type == "code")
 
 
 def number(text: str, pattern: str) -> float:
