@@ -28,6 +28,7 @@ from .errors import (
     OptionError,
     PanelError,
     PrecisionError,
+    SplitSubjectError,
     TimeTypeError,
 )
 from .summary import subject_summary
@@ -81,4 +82,5 @@ __all__ = [
     "NotConstantError",
     "OptionError",
     "DerivationFileError",
+    "SplitSubjectError",
 ]

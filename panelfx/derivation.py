@@ -166,10 +166,20 @@ class Derivation:
         return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
                           description=self.description)
 
-    def apply(self, frame: pd.DataFrame) -> pd.DataFrame:
+    def apply(self, frame: pd.DataFrame, **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=)``, with the provenance (this
         derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
-        already on the input is kept under ``"previous"``."""
+        already on the input is kept under ``"previous"``.
+
+        Given a dask DataFrame, the result is a dask DataFrame, lazily (see
+        :func:`panelfx.dask.apply`, which takes ``dask_options``)."""
+        if type(frame).__module__.startswith("dask."):  # no import of dask unless it is in use
+            from .dask import apply as apply_dask
+
+            return apply_dask(self, frame, **dask_options)
+        if dask_options:
+            raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
+                              f"{type(frame).__name__}")
         out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),

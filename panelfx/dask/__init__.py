@@ -1,0 +1,251 @@
+"""panelfx on Dask: the same derived variables on a partitioned frame, subject by subject.
+
+Every transform reads only its own subject's rows, so a panel partitions perfectly: put
+each subject's rows in one partition and run panelfx's own engine on each.  The results
+equal single-process :func:`panelfx.derive` exactly, value for value (the engine's results
+do not depend on row order or on the other subjects).  Needs ``pip install 'panelfx[dask]'``.
+
+- :func:`derive` / :func:`apply` (also ``Derivation.apply`` given a dask frame): the
+  derived columns, lazily, as a dask DataFrame;
+- :func:`subject_summary`, :func:`check`: the frame-level functions per partition;
+- :func:`map_subjects`: any function of a frame of whole subjects, per partition.
+
+Partitions: by default rows are shuffled by a stable hash of the (possibly composite) id
+(Dask's own shuffle), into ``npartitions`` (default: as many as the input).  With
+``whole_subjects=True`` the caller declares that each partition already holds whole
+subjects: there is no shuffle, the order, index and divisions are kept, and the
+declaration is verified cheaply (each partition reports the hashes of its subjects; a
+subject seen in two partitions raises :class:`~panelfx.errors.SplitSubjectError` naming
+example ids, or, with ``if_split="shuffle"``, the frame is shuffled instead).
+
+Rows and index: results keep the caller's index values.  After a shuffle the rows come
+grouped by subject hash, in no documented order within a partition; ``row_order="input"``
+puts them back in the caller's partitions, order and divisions (each row carries its
+number through the work: one more shuffle).  Side tables (``tables=``) are partitioned by
+the same hash, so each partition meets only its own subjects' records.
+
+Meta: the result's names and dtypes are predicted from the input's schema and the
+transforms without reading data (see :mod:`panelfx.dask._meta`): bad options and missing
+columns fail at once.  A column copied from an integer or boolean column (``lag``,
+``baseline``, ``carry_forward``) is float64 / object, as it is in pandas whenever a value
+is missing; use a nullable dtype (``Int64``, ``boolean``) to keep it.
+
+Progress: the work runs as Dask tasks named ``panelfx-*``: wrap ``compute()`` in
+``dask.diagnostics.ProgressBar()`` locally, or watch the dashboard of a
+``distributed.Client``.
+
+>>> import dask.dataframe as dd, pandas as pd, panelfx as pfx, panelfx.dask
+>>> df = pd.DataFrame({"pid": [1, 2, 1, 2, 3], "day": [0, 0, 7, 14, 0],
+...                    "hb": [12.5, 13.1, 12.0, 13.4, 11.8]})
+>>> ddf = dd.from_pandas(df, npartitions=2)
+>>> out = pfx.dask.derive(ddf, pfx.lag("hb"), pfx.change_from_baseline("hb"), id="pid", time="day")
+>>> out.compute().sort_index()
+   pid  day    hb  hb_lag1  hb_change
+0    1    0  12.5      NaN        0.0
+1    2    0  13.1      NaN        0.0
+2    1    7  12.0     12.5       -0.5
+3    2   14  13.4     13.1        0.3
+4    3    0  11.8      NaN        0.0
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any, Literal
+
+try:
+    import dask.dataframe as dd
+except ImportError as err:  # pragma: no cover - the extra is not installed
+    raise ImportError("panelfx.dask needs Dask: pip install 'panelfx[dask]'") from err
+import pandas as pd
+
+from .._panel import as_id_list
+from .._transform import Transform
+from ..derivation import Derivation
+from ..errors import OptionError, SplitSubjectError
+from ._layout import HASH, ROW, arrange, restore_order
+from ._meta import predict_outputs
+from ._run import Call, check_part, derive_spec, engine_options, run_partition
+
+__all__ = ["derive", "apply", "map_subjects", "subject_summary", "check", "SplitSubjectError"]
+
+
+def derive(
+    ddf: dd.DataFrame,
+    *transforms: Transform,
+    id: str | Sequence[str],
+    time: str,
+    unit: str | None = None,
+    tables: Mapping[str, Any] | None = None,
+    order: Any = None,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    row_order: Literal["any", "input"] = "any",
+) -> dd.DataFrame:
+    """:func:`panelfx.derive` on a dask DataFrame, lazily: a dask DataFrame with the derived columns.
+
+    ``id``, ``time``, ``unit`` and the transforms are those of :func:`panelfx.derive`;
+    ``tables`` (side tables by name, pandas or dask frames with the id columns) and ``order``
+    are passed on to it.  ``whole_subjects``, ``if_split``, ``npartitions`` and
+    ``row_order`` say how the rows are partitioned and returned (see the module docstring).
+    Nothing is computed here: the output's names and dtypes are predicted, and errors in the
+    data (a missing time, duplicate occasions) are raised by ``compute()``, naming the
+    partition whose rows they count.
+
+    >>> import dask.dataframe as dd, pandas as pd, panelfx as pfx, panelfx.dask
+    >>> df = pd.DataFrame({"pid": ["a", "a", "b", "b"], "day": [0, 30, 0, 28], "kg": [80.0, 78.5, 91.0, 90.0]},
+    ...                   index=[10, 11, 12, 13])
+    >>> out = pfx.dask.derive(dd.from_pandas(df, npartitions=2), pfx.baseline("kg"), id="pid", time="day",
+    ...                       row_order="input")
+    >>> out.dtypes["kg_baseline"], out.npartitions
+    (dtype('float64'), 2)
+    >>> out.compute()
+       pid  day    kg  kg_baseline
+    10   a    0  80.0         80.0
+    11   a   30  78.5         80.0
+    12   b    0  91.0         91.0
+    13   b   28  90.0         91.0
+    """
+    spec = Derivation(*transforms, id=id, time=time, unit=unit)
+    return apply(spec, ddf, tables=tables, order=order, whole_subjects=whole_subjects, if_split=if_split,
+                 npartitions=npartitions, row_order=row_order)
+
+
+def apply(
+    derivation: Derivation,
+    ddf: dd.DataFrame,
+    *,
+    tables: Mapping[str, Any] | None = None,
+    order: Any = None,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    row_order: Literal["any", "input"] = "any",
+) -> dd.DataFrame:
+    """A saved :class:`~panelfx.Derivation` applied to a dask DataFrame (as :func:`derive`).
+
+    The derivation travels to the workers as its plain JSON and is parsed once per worker
+    process."""
+    if not isinstance(derivation, Derivation):
+        raise OptionError(f"expected a panelfx.Derivation, got {type(derivation).__name__}")
+    if row_order not in ("any", "input"):
+        raise OptionError(f"row_order must be 'any' or 'input', got {row_order!r}")
+    options = engine_options(tables, order)
+    options.pop("tables", None)  # side tables go through the partitioning, not as one value
+    if not isinstance(ddf, dd.DataFrame):
+        raise TypeError(f"expected a dask DataFrame, got {type(ddf).__name__}")
+    id_cols = derivation.id_cols
+    # Predict the output schema first: bad options and missing columns fail before any work.
+    meta_in = ddf._meta
+    if tables or options:
+        table_metas = {k: (t._meta if isinstance(t, dd.DataFrame) else t.iloc[:0]) for k, t in (tables or {}).items()}
+        predicted = dict(derive_spec(meta_in, derivation.to_json(), table_metas, **options).dtypes.items())
+        predicted = {k: v for k, v in predicted.items() if k in derivation.outputs()}
+    else:
+        predicted = predict_outputs(meta_in, derivation.transforms, id_cols, derivation.time, derivation.unit)
+    layout = arrange(ddf, id_cols, whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions,
+                     rows=row_order == "input", tables=tables)
+    keep_row = row_order == "input" and layout.shuffled
+    meta = meta_in.copy()
+    for name, dtype in predicted.items():
+        meta[name] = pd.Series(pd.array([], dtype=dtype), index=meta.index)
+    if keep_row:
+        meta[ROW] = pd.Series([], dtype="int64", index=meta.index)
+    out = _map(layout, derive_spec, (), {"spec": derivation.to_json(), **options}, meta, keep_row, "panelfx-derive")
+    return restore_order(out, ddf) if keep_row else out
+
+
+def map_subjects(
+    ddf: dd.DataFrame,
+    func: Callable[..., pd.DataFrame],
+    *args: Any,
+    id: str | Sequence[str],
+    meta: pd.DataFrame | None = None,
+    tables: Mapping[str, Any] | None = None,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    **kwargs: Any,
+) -> dd.DataFrame:
+    """``func(frame, *args, id=id, **kwargs)`` on each partition, every partition holding whole subjects.
+
+    For functions of a frame that need all of a subject's rows and no other subject's (a
+    per-subject summary, a structure check, collapsing tied rows, a visit grid).  With
+    ``tables`` each call also gets ``tables={name: the partition's records}``.  ``meta``
+    (an empty frame with the result's columns and dtypes) is predicted by calling ``func``
+    on the input's empty meta when not given; each partition's result is held to it.
+    The result's index is each partition's own (e.g. 0, 1, ... per partition).
+
+    >>> import dask.dataframe as dd, pandas as pd, panelfx.dask
+    >>> df = pd.DataFrame({"pid": [1, 1, 2, 2, 2], "day": [0, 5, 0, 3, 9]})
+    >>> def last_visit(frame, id):
+    ...     return frame.groupby(id, as_index=False)["day"].max()
+    >>> out = panelfx.dask.map_subjects(dd.from_pandas(df, npartitions=2), last_visit, id="pid")
+    >>> out.compute().sort_values("pid").reset_index(drop=True)
+       pid  day
+    0    1    5
+    1    2    9
+    """
+    id_value: Any = id if isinstance(id, str) else list(as_id_list(id))
+    layout = arrange(ddf, as_id_list(id), whole_subjects=whole_subjects, if_split=if_split,
+                     npartitions=npartitions, rows=False, tables=tables)
+    kwargs = {"id": id_value, **kwargs}
+    if meta is None:
+        extra = {"tables": {k: t._meta.drop(columns=[HASH]) for k, t in layout.tables.items()}} if tables else {}
+        meta = func(ddf._meta, *args, **kwargs, **extra)
+    name = getattr(func, "__name__", "func")
+    return _map(layout, func, args, kwargs, meta, False, f"panelfx-{name}")
+
+
+def subject_summary(
+    ddf: dd.DataFrame,
+    cols: str | Sequence[str],
+    *,
+    id: str | Sequence[str],
+    time: str,
+    unit: str | None = None,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+) -> dd.DataFrame:
+    """:func:`panelfx.subject_summary` on a dask DataFrame: one row per subject.
+
+    Subjects come partition by partition, in order of first appearance within each; the
+    index is each partition's own 0, 1, ...  Sort by the id for a stable order."""
+    from ..summary import subject_summary as one
+
+    return map_subjects(ddf, one, cols, id=id, time=time, unit=unit, whole_subjects=whole_subjects,
+                        if_split=if_split, npartitions=npartitions)
+
+
+def check(
+    ddf: dd.DataFrame,
+    *,
+    id: str | Sequence[str],
+    time: str,
+    spacing: Any = None,
+    tolerance: Any = None,
+    notes: bool = False,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+) -> dd.DataFrame:
+    """:func:`panelfx.check` on a dask DataFrame: the findings of every partition.
+
+    The same findings as on the whole frame (``row`` is the caller's row label), except
+    the ``not_in_order`` note, which has no meaning for a partitioned frame.  Findings come
+    partition by partition, sorted by problem within each; the index is each partition's
+    own."""
+    return map_subjects(ddf, check_part, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes,
+                        whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions)
+
+
+def _map(layout: Any, func: Callable[..., pd.DataFrame], args: Sequence[Any], kwargs: Mapping[str, Any],
+         meta: pd.DataFrame, keep_row: bool, token: str) -> dd.DataFrame:
+    names = list(layout.tables)
+    return dd.map_partitions(
+        run_partition, layout.frame, *[layout.tables[k] for k in names], layout.verdict,
+        call=Call(func, args, kwargs), table_names=names, keep_row=keep_row, schema=meta,
+        meta=meta, token=token, enforce_metadata=False, align_dataframes=False,
+    )
