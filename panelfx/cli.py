@@ -331,10 +331,22 @@ def _apply(argv: list[str]) -> int:
     parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv")
     parser.add_argument("--output-format", choices=["csv", "parquet"])
     _input_options(parser, quiet="no progress or summary on stderr")
+    big = parser.add_argument_group(
+        "data bigger than memory", "A Parquet folder as input, or any of these options, works subject by subject "
+        "through hash partitions on disk and writes OUTPUT as a folder of Parquet parts (renamed into place when "
+        "complete). Same values as the in-memory path; rows come partition by partition.")
+    big.add_argument("--memory", metavar="SIZE", help="memory budget, e.g. 4GB (default: half of this machine's)")
+    big.add_argument("--partitions", type=int, metavar="N", help="number of partitions (default: from --memory)")
+    big.add_argument("--workers", type=int, default=1, metavar="N",
+                     help="partitions worked on at once, by Dask's local scheduler (needs panelfx[dask])")
+    big.add_argument("--row-number", metavar="COL", help="add each row's 0-based number in the input as COL")
     args = parser.parse_args(argv)
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
     derivation = Derivation.load(args.derivation)
+    if os.path.isdir(args.input) or any(v is not None for v in (args.memory, args.partitions, args.row_number)) \
+            or args.workers != 1:
+        return _apply_partitioned(derivation, args, progress)
     file_format(args.input, args.input_format, "input")
     file_format(args.output, args.output_format, "output")
     folder = os.path.dirname(os.path.abspath(args.output))
@@ -352,6 +364,28 @@ def _apply(argv: list[str]) -> int:
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
     write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
     return 0
+
+
+def _apply_partitioned(derivation: Derivation, args: argparse.Namespace, progress: Progress) -> int:
+    from ._bigfile import apply_partitioned, parse_size
+
+    if not os.path.isdir(args.input) and file_format(args.input, args.input_format, "input") != "parquet":
+        raise UsageError("data bigger than memory is read from Parquet (a file or a folder): convert the CSV first")
+    if args.output_format == "csv":
+        raise UsageError("a partitioned apply writes a folder of Parquet parts; --output-format csv is not possible")
+    if args.partitions is not None and args.partitions < 1:
+        raise UsageError(f"--partitions must be at least 1, got {args.partitions}")
+    memory = parse_size(args.memory) if args.memory is not None else _half_of_memory()
+    apply_partitioned(derivation, args.input, args.output, memory=memory, partitions=args.partitions,
+                      workers=args.workers, row_number=args.row_number, progress=progress)
+    return 0
+
+
+def _half_of_memory() -> int:
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")) // 2
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - not a POSIX system
+        return 4 * 2**30
 
 
 def _dictionary(argv: list[str]) -> int:

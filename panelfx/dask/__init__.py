@@ -25,7 +25,7 @@ number through the work: one more shuffle).  Side tables (``tables=``) are parti
 the same hash, so each partition meets only its own subjects' records.
 
 Meta: the result's names and dtypes are predicted from the input's schema and the
-transforms without reading data (see :mod:`panelfx.dask._meta`): bad options and missing
+transforms without reading data (see :mod:`panelfx._schema`): bad options and missing
 columns fail at once.  A column copied from an integer or boolean column (``lag``,
 ``baseline``, ``carry_forward``) is float64 / object, as it is in pandas whenever a value
 is missing; use a nullable dtype (``Int64``, ``boolean``) to keep it.
@@ -60,11 +60,11 @@ except ImportError as err:  # pragma: no cover - the extra is not installed
 import pandas as pd
 
 from .._panel import as_id_list
+from .._schema import predict_outputs
 from .._transform import Transform
 from ..derivation import Derivation
 from ..errors import OptionError, SplitSubjectError
 from ._layout import HASH, ROW, arrange, restore_order
-from ._meta import predict_outputs
 from ._run import Call, check_part, derive_spec, engine_options, run_partition
 
 __all__ = ["derive", "apply", "map_subjects", "subject_summary", "check", "SplitSubjectError"]

@@ -14,11 +14,11 @@ from typing import Any
 
 import pandas as pd
 
+from .._schema import conform
 from ..derivation import Derivation
 from ..derive import derive as _derive
 from ..errors import OptionError, PanelError
 from ._layout import HASH, ROW, raise_if_split
-from ._meta import conform
 
 __all__ = ["parse", "derive_spec", "run_partition", "supports", "check_part", "Call"]
 

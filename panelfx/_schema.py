@@ -1,9 +1,10 @@
 """The output schema of a partitioned run, predicted before any data is read, and held to.
 
-Dask needs the names and dtypes of a result before it computes it (its *meta*).  They are
-predicted from the input schema and the transforms: the engine runs on the empty frame
-Dask keeps as the input's meta, which gives every output's name and dtype and refuses bad
-options and missing or ill-typed columns at once, before any data is touched.
+A run in parts (:mod:`panelfx.dask`, the command line's partitioned ``apply``) must give
+every part the same columns and dtypes, known before it computes (Dask's *meta*).  They
+are predicted from the input schema and the transforms: the engine runs on an empty frame
+of the input's dtypes, which gives every output's name and dtype and refuses bad options
+and missing or ill-typed columns at once, before any data is touched.
 
 One thing an empty frame cannot tell: a transform that copies values of a column (``lag``,
 ``baseline``, ``carry_forward``: the engine's :class:`~panelfx._columns.Take`) gives the
@@ -26,10 +27,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._columns import Take
-from .._panel import Panel
-from ..derive import plan
-from ..errors import PrecisionError, rows_message
+from ._columns import Take
+from ._panel import Panel
+from .derive import plan
+from .errors import PrecisionError, rows_message
 
 __all__ = ["predict_outputs", "conform", "same_dtype"]
 
