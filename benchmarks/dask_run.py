@@ -37,8 +37,6 @@ import tempfile
 import time
 from typing import Any
 
-import numpy as np
-
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, HERE)
 

@@ -303,12 +303,23 @@ def test_side_table_ids_of_another_kind_are_refused(visits):
 
 
 @pytest.mark.skipif(supports("tables"), reason="panelfx.derive takes tables= now")
-def test_tables_and_order_are_refused_clearly_until_derive_takes_them(visits):
-    ddf = dd.from_pandas(visits, 2)
+def test_tables_are_refused_clearly_until_derive_takes_them(visits):
     with pytest.raises(pfx.OptionError, match="tables= is not supported"):
-        pfd.derive(ddf, pfx.lag("sbp"), **KEYS, tables={"labs": labs(visits)})
-    with pytest.raises(pfx.OptionError, match="order= is not supported"):
-        pfd.derive(ddf, pfx.lag("sbp"), **KEYS, order="dose_mg")
+        pfd.derive(dd.from_pandas(visits, 2), pfx.lag("sbp"), **KEYS, tables={"labs": labs(visits)})
+
+
+def test_order_is_passed_on_to_derive(visits):
+    # tied occasions: 40 visits recorded twice, the copy second by "seq"
+    tied = pd.concat([visits.assign(seq=0), visits.iloc[:40].assign(seq=1, sbp=lambda d: d["sbp"] + 1)])
+    tied.index = pd.RangeIndex(len(tied)) * 2 + 1
+    ddf = dd.from_pandas(tied, 3)
+    if not supports("order"):
+        with pytest.raises(pfx.OptionError, match="order= is not supported"):
+            pfd.derive(ddf, pfx.lag("sbp"), **KEYS, order="seq")
+        return
+    got = pfd.derive(ddf, pfx.lag("sbp"), pfx.occasion(), **KEYS, order="seq").compute()
+    want = pfx.derive(tied, pfx.lag("sbp"), pfx.occasion(), **KEYS, order="seq")
+    assert_same_rows(got, want, ["sbp_lag1", "occasion"])
 
 
 # ----------------------------------------------------------------------------- frame-level functions
