@@ -212,7 +212,16 @@ def subject_summary(
     """:func:`panelfx.subject_summary` on a dask DataFrame: one row per subject.
 
     Subjects come partition by partition, in order of first appearance within each; the
-    index is each partition's own 0, 1, ...  Sort by the id for a stable order."""
+    index is each partition's own 0, 1, ...  Sort by the id for a stable order.
+
+    >>> import dask.dataframe as dd, pandas as pd, panelfx.dask
+    >>> df = pd.DataFrame({"pid": [1, 2, 1, 2], "day": [0, 0, 10, 5], "hb": [12.0, 11.0, 13.0, None]})
+    >>> out = panelfx.dask.subject_summary(dd.from_pandas(df, npartitions=2), "hb", id="pid", time="day")
+    >>> out.compute().sort_values("pid")[["pid", "n_occasions", "hb_n", "hb_slope"]].reset_index(drop=True)
+       pid  n_occasions  hb_n  hb_slope
+    0    1            2     2       0.1
+    1    2            2     1       NaN
+    """
     from ..summary import subject_summary as one
 
     return map_subjects(ddf, one, cols, id=id, time=time, unit=unit, whole_subjects=whole_subjects,
@@ -236,7 +245,16 @@ def check(
     The same findings as on the whole frame (``row`` is the caller's row label), except
     the ``not_in_order`` note, which has no meaning for a partitioned frame.  Findings come
     partition by partition, sorted by problem within each; the index is each partition's
-    own."""
+    own.
+
+    >>> import dask.dataframe as dd, pandas as pd, panelfx.dask
+    >>> df = pd.DataFrame({"pid": [1, 1, 2, 2], "day": [0, 0, 0, 30]}, index=[10, 11, 12, 13])
+    >>> report = panelfx.dask.check(dd.from_pandas(df, npartitions=2), id="pid", time="day").compute()
+    >>> report[["problem", "id", "row"]].reset_index(drop=True)
+         problem  id  row
+    0  duplicate   1   10
+    1  duplicate   1   11
+    """
     return map_subjects(ddf, check_part, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes,
                         whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions)
 
