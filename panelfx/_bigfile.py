@@ -5,7 +5,7 @@ Every transform reads only its own subject's rows, so the work splits by subject
 1. **Partition pass**: the input (a Parquet file or a folder of Parquet files) is read in
    batches; each row goes to bucket ``subject_hash(id) % n`` (:mod:`panelfx._partition`),
    appended to that bucket's temporary Parquet file.  Rows keep their input order within a
-   bucket.  Memory: one batch plus the buckets' write buffers, a quarter of the budget.
+   bucket.  Memory: a few batches plus the buckets' write buffers (an eighth of the budget).
 2. **Per-partition pass**: each bucket is read into pandas, the derivation applied by
    panelfx's own engine, and the result written as ``part-NNNNN.parquet``.  ``workers`` > 1
    runs that many buckets at once on Dask's local scheduler (processes), each within its
@@ -53,10 +53,14 @@ __all__ = ["apply_partitioned", "plan_partitions", "MARKER", "parse_size"]
 MARKER = "_panelfx.json"
 #: Rows per batch read in the partition pass.
 BATCH_ROWS = 65_536
-#: Working memory of the engine per row and per derived column (bytes), beyond the input:
-#: measured at about 200 bytes a row for nine transforms (benchmarks/README.md), rounded up.
-ENGINE_ROW_BYTES = 160
-ENGINE_COLUMN_BYTES = 24
+#: Memory of one partition's work per row (bytes): three copies of the input row (Arrow, pandas,
+#: Arrow again to write), the engine's working arrays, and each derived column with its copies.
+#: Calibrated on the benchmark's panel (about 560 bytes a row for nine derived columns).
+INPUT_COPIES = 3
+ENGINE_ROW_BYTES = 200
+ENGINE_COLUMN_BYTES = 40
+#: A worker process's own memory (Python, pandas, pyarrow, panelfx) before any data.
+PROCESS_BYTES = 256 * 2**20
 #: At most this many buckets (each has an open file in the partition pass).
 MAX_PARTITIONS = 4096
 
@@ -98,8 +102,9 @@ def _row_group_sizes(dataset: Any) -> tuple[int, int]:
 
 def plan_partitions(rows: int, input_bytes: int, n_outputs: int, budget: int) -> int:
     """How many buckets make one bucket's work fit ``budget`` bytes."""
-    per_row = 2 * input_bytes / max(rows, 1) + ENGINE_ROW_BYTES + ENGINE_COLUMN_BYTES * n_outputs
-    return max(1, min(MAX_PARTITIONS, math.ceil(rows * per_row / max(budget, 1))))
+    per_row = INPUT_COPIES * input_bytes / max(rows, 1) + ENGINE_ROW_BYTES + ENGINE_COLUMN_BYTES * n_outputs
+    usable = max(budget - PROCESS_BYTES, budget // 4, 1)
+    return max(1, min(MAX_PARTITIONS, math.ceil(rows * per_row / usable)))
 
 
 def _input_meta(schema: Any, null_counts: dict[str, int]) -> pd.DataFrame:
@@ -161,7 +166,8 @@ def apply_partitioned(
     try:
         buckets = os.path.join(tmp, "_buckets")
         os.mkdir(buckets)
-        nulls = _partition_pass(dataset, derivation.id_cols, n, buckets, memory // 4, row_number, say, rows)
+        nulls = _partition_pass(dataset, derivation.id_cols, n, buckets, memory // 8, row_number, say, rows)
+        pa.default_memory_pool().release_unused()  # give the pass's buffers back before the workers start
         meta_in = _input_meta(schema, nulls)
         if row_number is not None:
             meta_in[row_number] = pd.Series([], dtype="int64")
@@ -175,7 +181,8 @@ def apply_partitioned(
         record = {"derivation": derivation.to_dict(), "input": os.path.basename(os.path.abspath(source))}
         jobs = [(i, os.path.join(buckets, f"b{i:05d}.parquet"), os.path.join(tmp, f"part-{i:05d}.parquet"))
                 for i in range(n) if os.path.exists(os.path.join(buckets, f"b{i:05d}.parquet"))]
-        done = _run_jobs(jobs, derivation.to_json(), meta_in, meta_out, record, row_number, workers, say, rows)
+        done, worker_peak = _run_jobs(jobs, derivation.to_json(), meta_in, meta_out, record, row_number, workers,
+                                      say, rows)
         if not jobs:  # an empty input: one empty part keeps the schema
             empty = pa.Table.from_pandas(meta_out, preserve_index=False)
             pq.write_table(empty, os.path.join(tmp, "part-00000.parquet"))
@@ -187,8 +194,10 @@ def apply_partitioned(
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    say(f"wrote {done:,} rows in {max(len(jobs), 1)} part(s) to {target}{os.sep}")
-    return {"rows": int(done), "partitions": n}
+    say(f"wrote {done:,} rows in {max(len(jobs), 1)} part(s) to {target}{os.sep}; peak memory "
+        f"{_peak_bytes() / 2**30:.2f} GiB in this process" + (f", {worker_peak / 2**30:.2f} GiB in the largest worker"
+                                                             if workers > 1 else ""))
+    return {"rows": int(done), "partitions": n, "peak": _peak_bytes(), "worker_peak": worker_peak}
 
 
 def _check_target(target: str) -> None:
@@ -238,7 +247,8 @@ def _partition_pass(dataset: Any, id_cols: Sequence[str], n: int, folder: str, b
             writers[k].write_table(table)
 
     try:
-        for batch in dataset.to_batches(batch_size=BATCH_ROWS):
+        # little read-ahead: the scanner would otherwise hold many decoded row groups at once
+        for batch in dataset.to_batches(batch_size=BATCH_ROWS, batch_readahead=2, fragment_readahead=1):
             for name, col in zip(batch.schema.names, batch.columns):
                 nulls[name] = nulls.get(name, 0) + col.null_count
             if row_number is not None:
@@ -274,8 +284,9 @@ def parse_once(spec: str) -> Derivation:
 
 
 def work_partition(job: tuple[int, str, str], spec: str, meta_in: pd.DataFrame, meta_out: pd.DataFrame,
-                   record: dict[str, Any], row_number: str | None) -> int:
-    """One bucket: read, derive with panelfx's engine, write its part; returns its rows.
+                   record: dict[str, Any], row_number: str | None) -> tuple[int, int]:
+    """One bucket: read, derive with panelfx's engine, write its part; returns its rows and
+    the peak memory of the process that did it.
     Module-level so that Dask's process scheduler can run it in another process."""
     import pyarrow.parquet as pq
 
@@ -293,22 +304,43 @@ def work_partition(job: tuple[int, str, str], spec: str, meta_in: pd.DataFrame, 
     info = {**record, "dictionary": out.attrs[ATTRS_KEY]["dictionary"]} if ATTRS_KEY in out.attrs else record
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in info.get("dictionary", [])}
     write_frame(out, part, "parquet", metadata=info, field_metadata=fields)
-    return len(out)
+    rows = len(out)
+    del frame, values, out
+    import pyarrow as pa
+
+    pa.default_memory_pool().release_unused()  # the next partition of this process starts from little
+    return rows, _peak_bytes()
+
+
+def _peak_bytes() -> int:
+    """This process's peak resident size so far (Linux; 0 elsewhere).  Read from /proc, not
+    from getrusage, whose peak a spawned worker inherits from the process that started it."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:  # pragma: no cover - not Linux
+        pass
+    return 0  # pragma: no cover
 
 
 def _run_jobs(jobs: list[tuple[int, str, str]], spec: str, meta_in: pd.DataFrame, meta_out: pd.DataFrame,
-              record: dict[str, Any], row_number: str | None, workers: int, say: Any, total: int) -> int:
-    state = {"parts": 0, "rows": 0}
+              record: dict[str, Any], row_number: str | None, workers: int, say: Any,
+              total: int) -> tuple[int, int]:
+    state = {"parts": 0, "rows": 0, "peak": 0}
 
-    def finished(rows: int) -> None:
+    def finished(result: tuple[int, int]) -> None:
+        rows, peak = result
         state["parts"] += 1
         state["rows"] += rows
+        state["peak"] = max(state["peak"], peak)
         say(f"partition {state['parts']} of {len(jobs)} done: {state['rows']:,} of {total:,} rows")
 
     if workers == 1 or len(jobs) <= 1:
         for job in jobs:
             finished(work_partition(job, spec, meta_in, meta_out, record, row_number))
-        return state["rows"]
+        return state["rows"], state["peak"]
     try:
         import dask
         from dask.callbacks import Callback
@@ -319,10 +351,10 @@ def _run_jobs(jobs: list[tuple[int, str, str]], spec: str, meta_in: pd.DataFrame
     class Report(Callback):
         def _posttask(self, key: Any, result: Any, dsk: Any, state_: Any, id: Any) -> None:
             if str(key).startswith("panelfx-part-"):
-                finished(int(result))
+                finished(result)
 
     tasks = [dask.delayed(work_partition, pure=False)(job, spec, meta_in, meta_out, record, row_number,
                                                       dask_key_name=f"panelfx-part-{job[0]}") for job in jobs]
     with Report():
         results = dask.compute(*tasks, scheduler="processes", num_workers=workers)
-    return int(sum(results))
+    return int(sum(r[0] for r in results)), max(r[1] for r in results)
