@@ -3,7 +3,10 @@
 - ``check INPUT --id COL --time COL [--spacing S] [--tolerance T]``: print the structure
   report of :func:`panelfx.check`.
 - ``apply DERIVATION INPUT -o OUTPUT``: apply a saved :class:`~panelfx.Derivation` to a
-  CSV or Parquet file and write Parquet or CSV.
+  CSV or Parquet file and write Parquet or CSV.  On Parquet bigger than memory (a folder,
+  or ``--memory`` / ``--partitions`` / ``--workers`` / ``--row-number``) it works subject
+  by subject through hash partitions on disk and writes a folder of parts
+  (:mod:`panelfx._bigfile`).
 - ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
 
 Files are read and written through pyarrow; the format follows the extension (``.csv``,
