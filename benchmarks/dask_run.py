@@ -178,7 +178,7 @@ def gib(b: float) -> str:
 
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    p.add_argument("--rows", default="2000000", help="comma-separated row counts")
+    p.add_argument("--rows", default="2000000", help="comma-separated row counts (empty: none)")
     p.add_argument("--big", type=int, default=0, help="rows of the bigger-than-memory run (0: skip)")
     p.add_argument("--big-memory", default="4GB", help="memory budget of the bigger-than-memory run")
     p.add_argument("--tmp", default=None, help="folder for the Parquet files (default: system temp)")
@@ -193,7 +193,7 @@ def main() -> None:
     tmp = tempfile.mkdtemp(prefix="panelfx-dask-bench-", dir=args.tmp)
     report: dict[str, Any] = {"machine": {"cpus": os.cpu_count()}, "runs": {}}
     try:
-        for rows in [int(r) for r in args.rows.split(",")]:
+        for rows in [int(r) for r in args.rows.split(",") if r]:
             src = os.path.join(tmp, f"panel-{rows}")
             files = max(2, rows // 500_000)  # a folder of files, as a cluster would read it
             write_panel(src, rows, files=files)
