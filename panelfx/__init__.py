@@ -16,36 +16,61 @@ from __future__ import annotations
 from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.pfx)
 from ._transform import Transform
 from .check import check
+from .collapse import collapse_ties
 from .derivation import Derivation, DerivationFileError
 from .derive import derive
+from .episodes import episodes
 from .errors import (
     ColumnExistsError,
     ColumnTypeError,
+    ConflictingTiesError,
     DuplicateOccasionError,
+    FollowUpError,
+    IntervalError,
     MissingColumnError,
+    MissingTableError,
+    NestingError,
     NotConstantError,
     NullKeyError,
     OptionError,
     PanelError,
     PrecisionError,
     SplitSubjectError,
+    TiedRecordsError,
     TimeTypeError,
+    UnknownSubjectError,
 )
+from .grid import grid
+from .person_time import person_time
+from .snapshot import snapshot
 from .summary import subject_summary
+from .transforms.analysis_visit import analysis_visit
+from .transforms.as_of import as_of
 from .transforms.baseline import baseline
+from .transforms.carry_baseline import carry_baseline
 from .transforms.carry_forward import carry_forward
+from .transforms.carry_worst import carry_worst
 from .transforms.change_from_baseline import change_from_baseline
 from .transforms.change_from_previous import change_from_previous
 from .transforms.cumulative import cumulative
+from .transforms.dose_dates import first_dose, last_dose
 from .transforms.events_so_far import events_so_far
 from .transforms.ever import ever
+from .transforms.exposure import exposure
 from .transforms.gap import gap
 from .transforms.lag import lag
 from .transforms.occasion import occasion
 from .transforms.rolling import rolling
+from .transforms.study_day import study_day
+from .transforms.table_window import table_window
 from .transforms.time_since import time_since
 from .transforms.time_since_baseline import time_since_baseline
+from .transforms.visit_pick import visit_pick
 from .transforms.within_between import within_between
+from .treatment_emergent import treatment_emergent
+from .variance import design_effect, variance_components
+from .visit_grid import visit_grid
+from .visit_windows import Windows, windows
 
 __version__ = "0.1.0"
 
@@ -69,7 +94,30 @@ __all__ = [
     "occasion",
     "gap",
     "rolling",
+    "as_of",
+    "table_window",
+    "exposure",
+    "first_dose",
+    "last_dose",
     "subject_summary",
+    "collapse_ties",
+    "variance_components",
+    "design_effect",
+    "grid",
+    # planned visits
+    "study_day",
+    "windows",
+    "Windows",
+    "analysis_visit",
+    "visit_pick",
+    "visit_grid",
+    "carry_baseline",
+    "carry_worst",
+    "treatment_emergent",
+    # interval data
+    "episodes",
+    "person_time",
+    "snapshot",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -79,8 +127,15 @@ __all__ = [
     "ColumnTypeError",
     "PrecisionError",
     "ColumnExistsError",
+    "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
+    "NestingError",
     "DerivationFileError",
     "SplitSubjectError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]

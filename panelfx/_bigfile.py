@@ -155,7 +155,7 @@ def apply_partitioned(
     n = partitions or plan_partitions(rows, size, len(derivation.outputs()), memory // workers)
     # Fail fast on the derivation and the schema, before any data is read (an all-null guess).
     predict_outputs(_input_meta(schema, {}), derivation.transforms, derivation.id_cols, derivation.time,
-                    derivation.unit)
+                    derivation.unit, order=derivation.order, time_unit=derivation.time_unit)
     say(f"{rows:,} rows in {source}: {n} partition(s) by subject, {workers} worker(s)")
 
     folder, base = os.path.split(target)
@@ -172,7 +172,7 @@ def apply_partitioned(
         if row_number is not None:
             meta_in[row_number] = pd.Series([], dtype="int64")
         outputs = predict_outputs(meta_in, derivation.transforms, derivation.id_cols, derivation.time,
-                                  derivation.unit)
+                                  derivation.unit, order=derivation.order, time_unit=derivation.time_unit)
         meta_out = meta_in.copy()
         for name, dtype in outputs.items():
             meta_out[name] = pd.Series(pd.array([], dtype=dtype))

@@ -24,20 +24,32 @@ from .errors import ColumnTypeError, MissingColumnError, PrecisionError, rows_me
 EXACT_FLOAT_INT = 2**53
 
 
+class Deferred:
+    """A transform's result that ``derive`` turns into caller-order values itself (dtype kept)."""
+
+    def resolve(self, panel: Any) -> Any:
+        """The values in the caller's row order: an array or extension array of ``panel.n``."""
+        raise NotImplementedError
+
+
 @dataclass(frozen=True)
-class Take:
+class Take(Deferred):
     """A transform's result "column ``col`` at sorted rows ``rows``" (-1: missing), dtype kept."""
 
     col: str
     rows: np.ndarray
+
+    def resolve(self, panel: Any) -> Any:
+        return panel.columns.take(self.col, self.rows)
 
 
 class Columns:
     """Input and derived columns of one panel, read in sorted order (see the module docstring)."""
 
     def __init__(self, frame: pd.DataFrame, ordering: Ordering,
-                 ids_at: Callable[[np.ndarray], list[Hashable]]) -> None:
+                 ids_at: Callable[[np.ndarray], list[Hashable]], keys: dict[str, pd.Series] | None = None) -> None:
         self.frame = frame
+        self._keys = keys or {}  # key columns that may sit in the index (the time column)
         self.ordering = ordering
         self._ids_at = ids_at  # caller positions -> first few subject ids, for messages
         self._derived: dict[str, pd.Series] = {}
@@ -51,6 +63,8 @@ class Columns:
         """A column in the caller's row order (input or derived so far)."""
         if col in self._derived:
             return self._derived[col]
+        if col not in self.frame.columns and col in self._keys:
+            return self._keys[col]
         if col not in self.frame.columns:
             raise MissingColumnError(f"column {col!r} is not in the frame", column=col, count=1)
         return self.frame[col]
@@ -74,24 +88,30 @@ class Columns:
         return self._cached(col, "numeric", lambda: self.ordering.sort(self._to_float(col)))
 
     def integers(self, col: str) -> np.ndarray | None:
-        """An integer column (numpy or nullable, no missing value) as int64 in sorted order;
-        ``None`` for any other column.  For exact arithmetic on integers beyond 2**53."""
+        """An integer column (numpy, nullable or Arrow; no missing value) in sorted order as int64,
+        or uint64 when its values pass the int64 range; ``None`` for any other column.  For exact
+        arithmetic on integers beyond 2**53."""
         def make() -> np.ndarray | None:
             s = self.series(col)
             if not pd.api.types.is_integer_dtype(s.dtype) or s.isna().any():
                 return None
-            v = s.to_numpy()
-            if v.dtype == np.uint64 and v.size and int(v.max()) > np.iinfo(np.int64).max:
-                return None
-            return self.ordering.sort(v.astype(np.int64, copy=False))
+            np_type = s.dtype if isinstance(s.dtype, np.dtype) else getattr(s.dtype, "numpy_dtype", None)
+            v = s.to_numpy(dtype=np_type)
+            wide = v.dtype.kind == "u" and v.size and int(v.max()) > np.iinfo(np.int64).max
+            return self.ordering.sort(v.astype(np.uint64 if wide else np.int64, copy=False))
         return self._cached(col, "integers", make)
 
-    def flags(self, col: str) -> tuple[np.ndarray, np.ndarray]:
+    def flags(self, col: str, *, any_nonzero: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """A true/false column in sorted order as (is_true, is_missing) boolean arrays.
 
-        Accepts booleans (numpy or nullable) and numbers where 0 is false and any other
-        number true; text is an error.
+        Accepts booleans (numpy, nullable or Arrow) and numbers that are all 0 or 1 (any
+        integer or float dtype).  Other numbers (a lab value, an event number) are a
+        :class:`ColumnTypeError`, unless ``any_nonzero`` says that any non-zero number is true.
+        Text is an error.
         """
+        return self._cached(col, f"flags{any_nonzero}", lambda: self._flags(col, any_nonzero))
+
+    def _flags(self, col: str, any_nonzero: bool) -> tuple[np.ndarray, np.ndarray]:
         s = self.series(col)
         if pd.api.types.is_bool_dtype(s.dtype):
             missing = s.isna().to_numpy()
@@ -99,8 +119,24 @@ class Columns:
         else:
             v = self._to_float(col)
             missing = np.isnan(v)
+            if not any_nonzero:
+                other = ~missing & (v != 0) & (v != 1)
+                if other.any():
+                    where = np.flatnonzero(other)
+                    shown = ", ".join(f"{x:g}" for x in np.unique(v[where])[:5])
+                    raise ColumnTypeError(
+                        rows_message(f"a true/false column must hold booleans or 0/1; found other numbers ({shown}). "
+                                     f"Derive a flag first (e.g. frame[{col!r}] > 0), or pass any_nonzero=True if "
+                                     f"every non-zero number means true", col, len(where), self._ids_at(where)),
+                        column=col, count=len(where), ids=self._ids_at(where))
             true = (v != 0) & ~missing
         return self.ordering.sort(true), self.ordering.sort(missing)
+
+    def condition(self, col: str) -> np.ndarray:
+        """A ``where=`` column in sorted order as one boolean array: true rows may serve as
+        sources; a missing value counts as false.  Booleans or 0/1 only."""
+        true, _ = self.flags(col)
+        return true
 
     def take(self, col: str, rows: np.ndarray) -> Any:
         """Values of ``col`` at sorted rows ``rows`` (-1: missing), in caller order, dtype kept

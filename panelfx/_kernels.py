@@ -90,7 +90,7 @@ def running_count(s: Subjects, mask: np.ndarray) -> np.ndarray:
 
 # ---------------------------------------------------------------------- running sums
 def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
-    """Running sum within subject: bit for bit v1, v1 + v2, (v1 + v2) + v3, ... in float64.
+    """Running sum within subject: bit for bit ``s = 0.0; s += v`` over the subject's rows in float64.
 
     Sequential addition in time order, exactly as a loop over one subject's rows would
     do it, so a subject's sums never depend on other subjects or on the row order.
@@ -107,6 +107,7 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
         out = _grid_cumsum(s, v)
     if s.n and not np.isfinite(out).all():
         _rescue_overflow(s, v, out)
+    out += 0.0  # a loop starts from +0.0: a sum of negative zeros is +0.0, as there
     return out
 
 
@@ -118,33 +119,28 @@ def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
     if int(lengths.max()) == 1:
         out[:] = v
         return out
-    # Length class of each subject: ceil(log2(length)); one matrix per class.
-    cls = np.frexp(np.maximum(lengths - 1, 0))[1].astype(np.int8)
-    n_cls = int(cls.max()) + 1
-    by_subject = np.argsort(cls, kind="stable")
-    sub_counts = np.bincount(cls, minlength=n_cls)
-    column = np.empty(len(lengths), dtype=np.int64)
-    column[by_subject] = np.arange(len(lengths)) - np.repeat(np.cumsum(sub_counts) - sub_counts, sub_counts)
-    row_cls = cls[s.grp]
-    by_row = np.argsort(row_cls, kind="stable")
-    row_counts = np.bincount(row_cls, minlength=n_cls)
-    pos = s.pos
+    # One flat buffer holding a matrix per length class (subjects of 2**(k-1) < length <= 2**k),
+    # a subject per matrix row, so a subject's rows are contiguous there; padding at most doubles
+    # the cells.  Each matrix is summed along its rows: sequential, per subject.
+    cls = np.frexp(np.maximum(lengths - 1, 0))[1]
+    counts = np.bincount(cls)
+    region = np.cumsum(counts * (1 << np.arange(len(counts))))  # end of each class's matrix
+    base = np.empty(len(lengths), dtype=np.int64)
+    for c in np.flatnonzero(counts).tolist():
+        members = np.flatnonzero(cls == c)  # subject order within the class
+        base[members] = region[c] - counts[c] * (1 << c) + np.arange(len(members)) * (1 << c)
+    index = base[s.grp]
+    index += s.pos
+    flat = np.zeros(int(region[-1]))
+    flat[index] = v
     at = 0
-    for k in range(n_cls):
-        if row_counts[k] == 0:
-            continue
-        rows = by_row[at: at + row_counts[k]]
-        at += row_counts[k]
-        if k == 0:  # subjects of one row
-            out[rows] = v[rows]
-            continue
-        p = pos[rows]
-        c = column[s.grp[rows]]
-        grid = np.zeros((int(p.max()) + 1, int(sub_counts[k])))
-        grid[p, c] = v[rows]
-        np.cumsum(grid, axis=0, out=grid)
-        out[rows] = grid[p, c]
-    return out
+    for k in range(len(counts)):
+        cells = int(counts[k]) << k
+        if counts[k] and k:
+            block = flat[at: at + cells].reshape(int(counts[k]), 1 << k)
+            np.cumsum(block, axis=1, out=block)
+        at += cells
+    return flat[index]
 
 
 def _rescue_overflow(s: Subjects, v: np.ndarray, out: np.ndarray) -> None:
@@ -175,18 +171,20 @@ class SearchKey:
     key: np.ndarray
     width: int
     distinct: np.ndarray | None  # rank mode: the distinct time keys, sorted
+    first: np.ndarray | None = None  # offset mode: each subject's first time key
 
 
 def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
     """The search key of rows whose time key (int64, sorting like the times) is ``tkey``."""
     forced = FORCED_SEARCH.get()
     if s.n and "rank" not in forced:
-        first = tkey[s.first]
-        rel = tkey - first  # within subject: no overflow, the time axis checks the range
-        width = int(rel.max()) + 2  # room for "after the subject's last time"
+        # offsets from the subject's first time, exact even past the int64 range (unsigned)
+        urel = tkey.view(np.uint64) - tkey[s.first].view(np.uint64)
+        width = int(urel.max()) + 2  # room for "after the subject's last time"
         if width.bit_length() + max(s.count, 1).bit_length() <= 62:
+            rel = urel.view(np.int64)
             rel += s.grp * width
-            return SearchKey("offset", rel, width, None)
+            return SearchKey("offset", rel, width, None, tkey[s.starts])
     distinct = np.unique(tkey)
     width = len(distinct) + 1
     key = np.searchsorted(distinct, tkey).astype(np.int64)
@@ -203,12 +201,13 @@ def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarra
     if len(q) == 0:
         return np.zeros(0, dtype=np.int64)
     if sk.mode == "offset":
-        first = tkey[s.starts[g]]
-        last = tkey[s.ends[g] - 1]
-        over = q > last
+        assert sk.first is not None
+        first = sk.first[g]
+        # q below the subject's first time: its first row; beyond first + width - 1: past its last
+        # row, the subject's end (its keys stay below first + width - 1)
         rel = np.maximum(q, first)
         rel -= first
-        rel[over] = sk.width - 1
+        np.minimum(rel.view(np.uint64), sk.width - 1, out=rel.view(np.uint64))  # q - first may pass int64
     else:
         assert sk.distinct is not None
         rel = np.searchsorted(sk.distinct, q, side="left").astype(np.int64)

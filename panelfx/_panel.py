@@ -28,7 +28,22 @@ from ._subjects import Subjects
 from ._time import NAT, UNITS_NS, TimeAxis, time_kind
 from .errors import DuplicateOccasionError, MissingColumnError, NullKeyError, OptionError, rows_message
 
-__all__ = ["Panel", "as_id_list", "require_columns", "time_kind", "to_float", "UNITS_NS", "NAT"]
+__all__ = ["Panel", "as_id_list", "key_column", "require_columns", "time_kind", "to_float", "UNITS_NS", "NAT"]
+
+
+def sort_key_with_order(axis: TimeAxis, order: pd.Series, check_null: Any) -> np.ndarray:
+    """One int64 per row sorting like (time, order): dense ranks of the pairs (order values of
+    any sortable type; physical row order never breaks a tie)."""
+    check_null(order.isna().to_numpy(), str(order.name), "missing order value")
+    ocode, _ = pd.factorize(order, sort=True)
+    by = np.lexsort((ocode, axis.key))
+    k, o = axis.key[by], ocode[by]
+    new = np.empty(len(by), dtype=bool)
+    new[:1] = True
+    new[1:] = (k[1:] != k[:-1]) | (o[1:] != o[:-1])
+    ranks = np.empty(len(by), dtype=np.int64)
+    ranks[by] = np.cumsum(new) - 1
+    return ranks
 
 
 def as_id_list(id: str | Sequence[str]) -> list[str]:
@@ -41,8 +56,17 @@ def as_id_list(id: str | Sequence[str]) -> list[str]:
     return ids
 
 
-def require_columns(frame: pd.DataFrame, columns: Sequence[str], what: str) -> None:
-    missing = [c for c in columns if c not in frame.columns]
+def key_column(frame: pd.DataFrame, name: str) -> pd.Series:
+    """A key (id, time, order) as a Series in row order: a column, or else an index level of that name."""
+    if name in frame.columns:
+        return frame[name]
+    return pd.Series(frame.index.get_level_values(name), index=frame.index, name=name)
+
+
+def require_columns(frame: pd.DataFrame, columns: Sequence[str], what: str, *, levels: bool = False) -> None:
+    """Every name is a column (or, with ``levels``, an index level: id and time may sit in a MultiIndex)."""
+    names = set(frame.index.names) if levels else set()
+    missing = [c for c in columns if c not in frame.columns and c not in names]
     if missing:
         raise MissingColumnError(
             f"{what} column {missing[0]!r} is not in the frame (columns: {list(frame.columns)[:20]})",
@@ -55,7 +79,10 @@ class Panel:
     """Rows of a frame in (subject, time) order: ``axis``, ``ordering``, ``subjects``, ``columns``.
 
     ``t`` is ``axis.t`` (native times, sorted); ``repeated`` marks rows with the same
-    subject and time as the row before (an error unless ``strict=False``).
+    subject and time (and ``order`` value) as the row before: an error unless ``strict=False``.
+    ``order`` names a column that orders rows sharing a time (tied occasions): rows then sort
+    by (subject, time, order), and ``tied`` marks rows with the same subject and time as the
+    row before.  ``id`` and ``time`` may name index levels instead of columns.
     """
 
     def __init__(
@@ -65,6 +92,8 @@ class Panel:
         id: str | Sequence[str],
         time: str,
         unit: str | None = None,
+        order: str | None = None,
+        time_unit: str | None = None,
         strict: bool = True,
     ) -> None:
         if not isinstance(frame, pd.DataFrame):
@@ -72,37 +101,65 @@ class Panel:
         self.id_cols = as_id_list(id)
         if not isinstance(time, str):
             raise OptionError(f"time must be a column name, got {time!r}")
+        if order is not None and (not isinstance(order, str) or order in (*self.id_cols, time)):
+            raise OptionError(f"order must name a column other than the id and time columns, got {order!r}")
         self.time_col = time
-        require_columns(frame, self.id_cols, "id")
-        require_columns(frame, [time], "time")
+        self.order_col = order
+        require_columns(frame, self.id_cols, "id", levels=True)
+        require_columns(frame, [time], "time", levels=True)
+        if order is not None:
+            require_columns(frame, [order], "order", levels=True)
         if time in self.id_cols:
             raise OptionError(f"time column {time!r} is also an id column")
         self.frame = frame
         self.n = len(frame)
-        axis, missing = TimeAxis.read(frame[time], unit)
-        if missing.any():
-            where = np.flatnonzero(missing)
-            ids = self._ids_at_caller(where)
-            raise NullKeyError(rows_message("missing time", time, len(where), ids),
-                               column=time, count=len(where), ids=ids)
+        keys = pd.DataFrame({c: key_column(frame, c).array for c in self.id_cols}, index=frame.index)
+        self._keys = keys
+        axis, missing = TimeAxis.read(key_column(frame, time), unit, time_unit)
+        self._check_null(missing, time, "missing time")
+        sort_t, sort_key = axis.t, lambda: axis.key
+        if order is not None:
+            sort_t = sort_key_with_order(axis, key_column(frame, order), self._check_null)
+            sort_key = lambda: sort_t  # noqa: E731 - the combined ranks are the key
         self.ordering: Ordering
-        self.ordering, codes = order_rows(frame, self.id_cols, axis.t, lambda: axis.key)
+        self.ordering, codes = order_rows(keys, self.id_cols, sort_t, sort_key)
         self.axis = axis.take(self.ordering.order)
         self.subjects = Subjects.from_codes(codes)
-        self.columns = Columns(frame, self.ordering, self._ids_at_caller)
-        self.repeated = np.zeros(self.n, dtype=bool)  # same subject and time as the row before
+        self.columns = Columns(frame, self.ordering, self._ids_at_caller, keys={time: key_column(frame, time)})
+        self.tables: dict[str, Any] = {}  # name -> _tables.SideTable, set by derive(tables=)
+        # tied: same subject and time as the row before; repeated: also the same order value
+        self.tied = np.zeros(self.n, dtype=bool)
         if self.n > 1:
             t = self.axis.t
-            np.equal(t[1:], t[:-1], out=self.repeated[1:])
-            self.repeated[self.subjects.starts] = False
+            np.equal(t[1:], t[:-1], out=self.tied[1:])
+            self.tied[self.subjects.starts] = False
+        self.repeated = self.tied
+        if order is not None:
+            o = self.ordering.sort(sort_t)
+            self.repeated = self.tied.copy()
+            self.repeated[1:] &= o[1:] == o[:-1]
         if strict and self.repeated.any():
             where = np.flatnonzero(self.repeated)
             ids = self.ids_at(where)
-            raise DuplicateOccasionError(
-                rows_message(f"duplicate (id, time): {len(where)} repeated occasion(s); keep one row per "
-                             f"subject and time", time, len(where), ids),
-                column=time, count=len(where), ids=ids,
-            )
+            if order is None:
+                what = (f"duplicate (id, time): {len(where)} repeated occasion(s); keep one row per subject and "
+                        f"time, give order= (a column that orders rows sharing a time), or combine them with "
+                        f"collapse_ties()")
+            else:
+                what = (f"duplicate (id, time, {order}): {len(where)} repeated row(s); the order column must "
+                        f"tell tied rows apart, or combine them with collapse_ties()")
+            raise DuplicateOccasionError(rows_message(what, time, len(where), ids), column=time,
+                                         count=len(where), ids=ids)
+
+    def _check_null(self, missing: np.ndarray, col: str, what: str) -> None:
+        if missing.any():
+            where = np.flatnonzero(missing)
+            ids = self._ids_at_caller(where)
+            raise NullKeyError(rows_message(what, col, len(where), ids), column=col, count=len(where), ids=ids)
+
+    @functools.cached_property
+    def has_ties(self) -> bool:
+        return bool(self.tied.any())
 
     # ------------------------------------------------------------------ shortcuts
     @property
@@ -144,7 +201,7 @@ class Panel:
     def _ids_at_caller(self, positions: np.ndarray, limit: int = 5) -> list[Hashable]:
         """Subject ids (tuples for several id columns) at the first few caller positions, distinct."""
         pos = np.asarray(positions)[: limit * 20]
-        cols = [self.frame[c].iloc[pos].tolist() for c in self.id_cols]
+        cols = [self._keys[c].iloc[pos].tolist() for c in self.id_cols]
         vals = cols[0] if len(cols) == 1 else list(zip(*cols))
         return list(dict.fromkeys(vals))[:limit]
 
@@ -163,7 +220,7 @@ class Panel:
     def elapsed_since(self, source: np.ndarray) -> np.ndarray:
         """Per row: the time since sorted row ``source`` as a float duration, NaN where -1."""
         t = self.axis.t
-        out = self.axis.duration(t - t[np.maximum(source, 0)])
+        out = self.axis.elapsed(t, t[np.maximum(source, 0)])
         out[source < 0] = np.nan
         return out
 

@@ -7,12 +7,14 @@ of the input's dtypes, which gives every output's name and dtype and refuses bad
 and missing or ill-typed columns at once, before any data is touched.
 
 One thing an empty frame cannot tell: a transform that copies values of a column (``lag``,
-``baseline``, ``carry_forward``: the engine's :class:`~panelfx._columns.Take`) gives the
-column's own dtype when no row comes out missing, and pandas' upcast when one does (int64
-to float64, bool to object).  Which happens depends on the data of each partition, so the
-prediction takes the dtype with a missing value, the one pandas gives on almost any real
-panel (every subject's first occasion has no lag).  Nullable (``Int64``, ``boolean``),
-float, datetime, text and categorical columns keep their dtype either way.
+``baseline``, ``carry_forward``, a side table's values: the engine's ``Take`` and
+``SideTake``) gives the column's own dtype when no row comes out missing, and pandas' upcast
+when one does (int64 to float64, bool to object); true/false results (``Flags``) are bool
+without a missing value and nullable ``boolean`` with one.  Which happens depends on the
+data of each partition, so the prediction takes the dtype with a missing value, the one
+pandas gives on almost any real panel (every subject's first occasion has no lag).
+Nullable (``Int64``, ``boolean``), float, datetime, text and categorical columns keep their
+dtype either way.
 
 ``conform`` then holds each computed partition to the prediction: a column whose dtype
 differs is cast, and the cast is checked to be exact (int64 values beyond 2**53 are not
@@ -21,37 +23,62 @@ float64: a :class:`~panelfx.errors.PrecisionError` names the column; use ``Int64
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from ._columns import Take
+from ._columns import Deferred
 from ._panel import Panel
 from .derive import plan
-from .errors import PrecisionError, rows_message
+from .errors import ColumnTypeError, PrecisionError, rows_message
 
-__all__ = ["predict_outputs", "conform", "same_dtype"]
+__all__ = ["predict_outputs", "conform", "same_dtype", "widen"]
 
 
 def predict_outputs(meta: pd.DataFrame, transforms: Sequence[Any], id_cols: Sequence[str], time: str,
-                    unit: str | None) -> dict[str, Any]:
-    """name -> dtype of each derived column, from the empty input ``meta`` (no data read)."""
-    panel = Panel(meta.iloc[:0], id=list(id_cols), time=time, unit=unit)
-    plan(list(meta.columns), transforms, panel.id_cols, panel.time_col)
+                    unit: str | None, order: str | None = None, time_unit: str | None = None,
+                    tables: Mapping[str, pd.DataFrame] | None = None) -> dict[str, Any]:
+    """name -> dtype of each derived column, from the empty input ``meta`` (and empty side
+    tables of the tables' dtypes): no data read."""
+    from ._tables import side_tables
+    from .derive import table_columns
+
+    empty_tables = {k: t.iloc[:0] for k, t in tables.items()} if tables else None
+    plan(list(meta.columns), transforms, list(id_cols), time, table_columns(empty_tables))
+    panel = Panel(meta.iloc[:0], id=list(id_cols), time=time, unit=unit, order=order, time_unit=time_unit)
+    panel.tables = side_tables(panel, empty_tables)
     out: dict[str, Any] = {}
     for tr in transforms:
         for name, v in zip(tr.outputs(), tr.compute(panel)):
-            if isinstance(v, Take):
-                source = panel.columns.series(v.col)
-                values = source.to_numpy() if isinstance(source.dtype, np.dtype) else source.array
-                # pandas' own upcast for "taken with a missing value" (int64 -> float64, bool -> object)
-                dtype = pd.api.extensions.take(values[:0], np.array([-1]), allow_fill=True).dtype
+            kind = type(v).__name__
+            if isinstance(v, Deferred):
+                resolved = v.resolve(panel)
+                if kind in ("Take", "SideTake"):
+                    # a column's values at other rows: pandas' own upcast for "taken with a missing
+                    # value" (int64 -> float64, bool -> object), as on almost any real panel
+                    dtype = pd.api.extensions.take(resolved[:0], np.array([-1]), allow_fill=True).dtype
+                elif kind == "Flags":
+                    dtype = pd.BooleanDtype()  # true/false with missing ones
+                else:
+                    dtype = pd.Series(resolved).dtype
             else:
-                dtype = np.asarray(v).dtype
+                dtype = pd.Series(v).dtype if isinstance(v, pd.api.extensions.ExtensionArray) else np.asarray(v).dtype
             out[name] = dtype
             panel.columns.add(name, pd.Series(pd.array([], dtype=dtype), index=panel.frame.index[:0], name=name))
+    return out
+
+
+def widen(meta: pd.DataFrame) -> pd.DataFrame:
+    """``meta`` with numpy integer and boolean columns made nullable (Int64, boolean): for
+    results whose dtype depends on whether a partition has a missing value."""
+    out = meta.copy()
+    for name, dtype in meta.dtypes.items():
+        if isinstance(dtype, np.dtype) and dtype.kind in "iu":
+            out[name] = out[name].astype("UInt64" if dtype.kind == "u" else "Int64")
+        elif isinstance(dtype, np.dtype) and dtype.kind == "b":
+            out[name] = out[name].astype("boolean")
     return out
 
 
@@ -71,7 +98,13 @@ def conform(frame: pd.DataFrame, meta: pd.DataFrame, ids: Any = None) -> pd.Data
         s = frame[name]
         if same_dtype(s.dtype, want):
             continue
-        cast = s.astype(want)
+        try:
+            cast = s.astype(want)
+        except (TypeError, ValueError) as err:  # e.g. a missing value where int64 was predicted
+            raise ColumnTypeError(
+                f"column {name!r} is {s.dtype} in this partition, which cannot be held as {want}, the dtype "
+                f"predicted for the whole result ({err}); pass meta= with a nullable dtype (Int64, boolean)",
+                column=str(name), count=int(s.isna().sum())) from None
         back = cast.astype(s.dtype)
         same = (back == s) | (back.isna() & s.isna())
         if not bool(np.asarray(same.fillna(False), dtype=bool).all()) or cast.isna().sum() != s.isna().sum():

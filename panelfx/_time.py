@@ -226,31 +226,47 @@ class TimeAxis:
     scale: int | None  # numbers: times are counts of 1/scale; None for binary floats
     tz: Any  # datetimes: the column's zone, None when naive
     t: np.ndarray  # int64 ticks, or float64 for binary floats
+    time_unit: str | None = None  # numbers: the unit the user declared for them (a UNITS_NS key), if any
 
     # ------------------------------------------------------------------ reading
     @classmethod
-    def read(cls, series: pd.Series, unit: str | None = None) -> tuple[TimeAxis, np.ndarray]:
-        """(axis with times in the series' row order, missing-time mask)."""
+    def read(cls, series: pd.Series, unit: str | None = None,
+             time_unit: str | None = None) -> tuple[TimeAxis, np.ndarray]:
+        """(axis with times in the series' row order, missing-time mask).
+
+        ``time_unit`` declares the unit of numeric times ("D": days since randomisation, say);
+        then ``unit`` converts durations as it does for datetimes, and spans such as "30D" fit.
+        """
         kind = time_kind(series)
         name = str(series.name)
-        unit = _check_unit(unit, kind, name)
+        if time_unit is not None:
+            if kind != "number":
+                raise OptionError(f"time_unit={time_unit!r} declares the unit of numeric times; time column "
+                                  f"{name!r} holds {kind} values, which carry their own")
+            if time_unit not in UNITS_NS:
+                raise OptionError(f"time_unit must be one of {sorted(UNITS_NS)}, got {time_unit!r}")
+            unit = time_unit if unit is None else unit
+        unit = _check_unit(unit, kind, name, time_unit)
         tz = res = None
         scale: int | None = 1
         if kind == "datetime":
             t, res, tz = _datetimes(series, "time column")
             missing = t == NAT
-            _check_span_fits(t, missing, name)
         elif kind == "timedelta":
             t, res = _timedeltas(series)
             missing = t == NAT
-            _check_span_fits(t, missing, name)
         else:
             t, scale, missing = _numbers(series)
-        return cls(kind=kind, column=name, unit=unit, res=res, scale=scale, tz=tz, t=t), missing
+        return cls(kind=kind, column=name, unit=unit, res=res, scale=scale, tz=tz, t=t, time_unit=time_unit), missing
 
     def take(self, order: np.ndarray | None) -> TimeAxis:
         """The axis with its times in another row order (``None``: unchanged)."""
-        return self if order is None else replace(self, t=self.t[order])
+        if order is None:
+            return self
+        out = replace(self, t=self.t[order])
+        if "distinct" in self.__dict__:  # the same set of times, whatever their order
+            out.__dict__["distinct"] = self.__dict__["distinct"]
+        return out
 
     @property
     def binary(self) -> bool:
@@ -258,8 +274,13 @@ class TimeAxis:
         return self.t.dtype.kind == "f"
 
     @property
-    def tick_ns(self) -> int:
-        return UNITS_NS[self.res] if self.res else 1
+    def tick_ns(self) -> Fraction:
+        """Nanoseconds per tick (numbers with a declared unit: that unit over the decimal scale)."""
+        if self.res:
+            return Fraction(UNITS_NS[self.res])
+        if self.time_unit is not None:
+            return Fraction(UNITS_NS[self.time_unit], self.scale or 1)
+        return Fraction(1)
 
     # ------------------------------------------------------------------ key scale
     @functools.cached_property
@@ -300,10 +321,16 @@ class TimeAxis:
         """A window length or offset in native units: an exact fraction of ticks, or a float on
         binary float axes.  Checked against the time column's kind."""
         if self.kind == "number":
+            if self.time_unit is not None and isinstance(value, (str, pd.Timedelta, _dt.timedelta, np.timedelta64)):
+                try:
+                    ticks = span_ns(value) / UNITS_NS[self.time_unit] * (self.scale or 1)
+                except (ValueError, OverflowError):
+                    raise OptionError(f"{what}={value!r} is not a time span such as '90D'") from None
+                return float(ticks) if self.binary else ticks
             if isinstance(value, (str, pd.Timedelta, _dt.timedelta, np.timedelta64, bool)) \
                     or not isinstance(value, (int, float, np.integer, np.floating)):
                 raise OptionError(f"{what}={value!r} does not fit time column {self.column!r}, which holds "
-                                  f"numbers: give a number in its units")
+                                  f"numbers: give a number in its units (or declare them with time_unit=)")
             if self.binary:
                 return float(value)
             return exact_number(value.item() if isinstance(value, np.generic) else value) * (self.scale or 1)
@@ -315,12 +342,26 @@ class TimeAxis:
         raise OptionError(f"{what}={value!r} does not fit time column {self.column!r}, which holds {self.kind} "
                           f"values: give a timedelta or a string such as '90D'")
 
+    def between(self, later: np.ndarray, earlier: np.ndarray) -> np.ndarray:
+        """``later - earlier`` in native units as float64, for ``later >= earlier`` (sorted rows):
+        exact integer arithmetic on integer axes even where the difference passes the int64 range
+        (taken modulo 2**64 as unsigned), then rounded once."""
+        if self.binary:
+            return later - earlier
+        return (later.view(np.uint64) - earlier.view(np.uint64)).astype(np.float64)
+
+    def elapsed(self, later: np.ndarray, earlier: np.ndarray) -> np.ndarray:
+        """Durations ``later - earlier`` (``later >= earlier``) in ``unit``: :meth:`between`, scaled."""
+        if self.binary:
+            return self.duration(later - earlier)
+        return self.duration(later.view(np.uint64) - earlier.view(np.uint64))
+
     def duration(self, delta: np.ndarray) -> np.ndarray:
         """Differences of native times as float64 durations: time-column units for numbers,
         ``unit`` (default days) for datetimes and timedeltas.  Exact while the difference is
         below 2**53 ticks, else correctly rounded from the exact integer difference."""
         d = delta.astype(np.float64)
-        if self.kind == "number":
+        if self.kind == "number" and self.time_unit is None:
             return d if not self.scale or self.scale == 1 else d / self.scale
         ratio = Fraction(self.tick_ns, UNITS_NS[self.unit or "D"])
         if ratio.numerator == 1:
@@ -364,7 +405,7 @@ class TimeAxis:
         else:
             raw, res = _timedeltas(series)
         missing = raw == NAT
-        return _rescale_floor(raw, UNITS_NS[res], self.tick_ns), missing
+        return _rescale_floor(raw, UNITS_NS[res], int(self.tick_ns)), missing
 
     def _reference_numbers(self, series: pd.Series) -> tuple[np.ndarray, np.ndarray]:
         x = series.to_numpy(dtype=np.float64, na_value=np.nan) if not _is_int(series) \
@@ -420,9 +461,7 @@ def _numbers(series: pd.Series) -> tuple[np.ndarray, int | None, np.ndarray]:
             raise TimeTypeError(rows_message("time beyond the int64 range", name, len(bad),
                                              list(series.index[bad[:5]]), noun="row labels"),
                                 column=name, count=len(bad))
-        t = raw.astype(np.int64)
-        _check_span_fits(t, missing, name)
-        return t, 1, missing
+        return raw.astype(np.int64), 1, missing
     x = series.to_numpy(dtype=np.float64, na_value=np.nan)
     missing = np.isnan(x)
     inf = np.isinf(x)
@@ -438,19 +477,13 @@ def _numbers(series: pd.Series) -> tuple[np.ndarray, int | None, np.ndarray]:
     return t, scale, missing
 
 
-def _check_span_fits(t: np.ndarray, missing: np.ndarray, name: str) -> None:
-    ok = t[~missing] if missing.any() else t
-    if ok.size and int(ok.max()) - int(ok.min()) > INT_MAX:
-        raise TimeTypeError(f"times in column {name!r} span more than 2**63 - 1: differences cannot be exact",
-                            column=name, count=len(t))
-
-
-def _check_unit(unit: str | None, kind: str, column: str) -> str | None:
+def _check_unit(unit: str | None, kind: str, column: str, time_unit: str | None = None) -> str | None:
     if unit is None:
         return "D" if kind != "number" else None
-    if kind == "number":
-        raise OptionError(f"unit={unit!r} applies to datetime or timedelta times only; time column {column!r} "
-                          f"holds numbers, whose own units are used")
+    if kind == "number" and time_unit is None:
+        raise OptionError(f"unit={unit!r} converts durations of datetime times, or of numeric times whose unit is "
+                          f"declared with time_unit= (e.g. time_unit='D'); time column {column!r} holds numbers "
+                          f"of no declared unit, whose own units are used")
     if unit not in UNITS_NS:
         raise OptionError(f"unit must be one of {sorted(UNITS_NS)}, got {unit!r}")
     return unit

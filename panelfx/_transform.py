@@ -16,6 +16,7 @@ from .errors import OptionError
 
 if TYPE_CHECKING:
     from ._panel import Panel
+    from ._tables import TableUse
 
 #: type_name -> transform class; filled by ``Transform.__init_subclass__``.
 REGISTRY: dict[str, type[Transform]] = {}
@@ -41,6 +42,11 @@ class Transform:
         """Names of the columns it adds, in order."""
         raise NotImplementedError
 
+    def groupings(self) -> tuple[str, ...]:
+        """Those of :meth:`inputs` read as groupings (levels such as a clinic), which may
+        be id columns; none by default."""
+        return ()
+
     @property
     def past_only(self) -> bool:
         """True when each row's value uses only that occasion and earlier ones."""
@@ -53,6 +59,16 @@ class Transform:
     def compute(self, panel: Panel) -> Sequence[Any]:
         """One array per output, in the caller's row order."""
         raise NotImplementedError
+
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        """Per output, what its time unit means for the data dictionary: "duration", "rate" (per
+        unit of time), "area" (value x time) or None (no time unit: a value, a count, a time).
+        ``time`` is the panel's time column (a difference of it is a duration)."""
+        return (None,) * len(self.outputs())
+
+    def tables(self) -> tuple[TableUse, ...]:
+        """Side tables the transform reads (``derive(..., tables=)``), with the columns it reads."""
+        return ()
 
     # -- shared helpers ------------------------------------------------------------
     def options(self) -> dict[str, Any]:
@@ -104,3 +120,6 @@ class OccasionHelper(Transform):
     @property
     def past_only(self) -> bool:
         return True
+
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("duration",)  # gap and time since baseline; occasion overrides

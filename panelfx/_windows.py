@@ -68,10 +68,11 @@ _EPS = np.finfo("float64").eps
 
 @dataclass(frozen=True)
 class Bounds:
-    """Window of every sorted row i: rows ``lo[i] .. i - end`` (none when ``length`` is 0).
+    """Window of every sorted row i: rows ``lo[i] .. hi[i] - 1`` (none when ``length`` is 0).
 
     ``end`` is 0 when the window ends at the current occasion and 1 when it ends just
-    before it; ``length = hi - lo`` with ``hi = i + 1 - end``.
+    before it, so that ``hi = i + 1 - end``; -1 when the ends are irregular (an open right
+    end that also leaves out tied rows at the current time).
     """
 
     lo: np.ndarray
@@ -98,8 +99,13 @@ def bounds(
     """
     s = p.subjects
     i = np.arange(p.n)
-    end = 1 if exclude_current or (span is not None and closed in ("left", "neither")) else 0
+    open_right = span is not None and closed in ("left", "neither")
+    end = 1 if exclude_current or open_right else 0
     hi = i + 1 - end
+    if open_right and p.has_ties:
+        # [t - s, t) leaves out every row at time t, tied rows earlier in the order too
+        hi = np.minimum(hi, p.first_at_or_after(p.axis.key))
+        end = -1
     if occasions is not None:
         lo = np.maximum(s.first, hi - occasions)
     elif span is not None:
@@ -139,6 +145,25 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
         if over.size:  # an overflow on the way: add again, scaled
             out[over] = padded_apply(v0, b, over, _sum_of_rows)
         return out
+    out = _total_by_prefix(s, b, v0)
+    # Short windows are always added directly, whatever other rows' windows are, so that a
+    # row's sum never depends on the other subjects (the same path, to the last bit).
+    short = np.flatnonzero((b.length <= DIRECT_MAX) & (b.length > 0))
+    if short.size:
+        with np.errstate(over="ignore", invalid="ignore"):
+            acc = np.zeros(short.size)
+            hi, length = b.hi[short], b.length[short]
+            for d in range(DIRECT_MAX):
+                np.add(acc, v0[np.maximum(hi - 1 - d, 0)], out=acc, where=length > d)
+        out[short] = acc
+        over = short[~np.isfinite(acc)]
+        if over.size:
+            out[over] = padded_apply(v0, b, over, _sum_of_rows)
+    return out
+
+
+def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
+    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly."""
     prefix = K.cumsum(s, v0)
     top, bottom = _prefix_ends(s, b, prefix)
     # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
@@ -197,9 +222,14 @@ def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 
 def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np.ndarray:
-    """Reduce each (short) window offset by offset: ``ufunc`` over v[i - end - d], d < length."""
+    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length."""
     n = v.size
     out = np.full(n, start, dtype=np.result_type(v.dtype, type(start)))
+    if b.end < 0:  # irregular ends: gather each offset
+        for d in range(b.width):
+            reach = b.length > d
+            ufunc(out, v[np.maximum(b.hi - 1 - d, 0)], out=out, where=reach)
+        return out
     for d in range(b.width):
         s = b.end + d
         if s >= n:
@@ -221,6 +251,12 @@ def variance(s: Subjects, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.n
         rows = np.flatnonzero(enough)
         out[rows] = padded_apply(y, b, rows, _two_pass_var)
         return out
+    # Short windows always take the two-pass route (see total): a row never depends on others.
+    short = enough & (b.length <= DIRECT_MAX)
+    enough = enough & ~short
+    rows = np.flatnonzero(short)
+    if rows.size:
+        out[rows] = padded_apply(y, b, rows, _two_pass_var)
     # Centre by the subject mean so that prefix sums of squares stay of the window's size.
     n_valid = s.reduce(np.add, valid.astype(np.float64))
     v0 = np.where(valid, y, 0.0)
@@ -237,7 +273,7 @@ def variance(s: Subjects, b: Bounds, y: np.ndarray, valid: np.ndarray, cnt: np.n
         # Rounding bound of num: of s2, and of s1 as it enters s1**2 / count (see _rounding).
         bound = 4 * (_rounding(s, b, None, ww) + _EPS * np.abs(s2)
                      + 2 * np.abs(s1) * _rounding(s, b, None, w) / safe_cnt)
-        out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), np.nan)
+        out = np.where(enough, np.maximum(num, 0.0) / (cnt - 1), out)
         # not finite: an overflow on the way (the two-pass sums below scale if they must)
         redo = np.flatnonzero(enough & ((bound > VAR_RTOL * num) | ~np.isfinite(num) | ~np.isfinite(bound)))
     if redo.size:

@@ -3,7 +3,7 @@
 Registered when :mod:`panelfx` is imported.  Every method delegates to the function of
 the same name, so the results are identical:
 
-- ``df.pfx.derive(*transforms, id=, time=, unit=)`` is :func:`panelfx.derive`;
+- ``df.pfx.derive(*transforms, id=, time=, unit=, tables=)`` is :func:`panelfx.derive`;
 - ``df.pfx.check(id=, time=, ...)`` is :func:`panelfx.check`;
 - ``df.pfx.apply(derivation)`` is :meth:`panelfx.Derivation.apply` (a derivation, or
   the path of a saved one);
@@ -26,7 +26,7 @@ the same name, so the results are identical:
 from __future__ import annotations
 
 import os
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import pandas as pd
@@ -45,20 +45,20 @@ class PanelAccessor:
         self._frame = frame
 
     def derive(self, *transforms: Transform, id: str | Sequence[str], time: str,
-               unit: str | None = None) -> pd.DataFrame:
+               unit: str | None = None, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
         """:func:`panelfx.derive` on this frame."""
         from .derive import derive
 
-        return derive(self._frame, *transforms, id=id, time=time, unit=unit)
+        return derive(self._frame, *transforms, id=id, time=time, unit=unit, tables=tables)
 
     def check(self, *, id: str | Sequence[str], time: str, spacing: Any = None, tolerance: Any = None,
-              notes: bool = False) -> pd.DataFrame:
-        """:func:`panelfx.check` on this frame."""
+              notes: bool = False, **plan: Any) -> pd.DataFrame:
+        """:func:`panelfx.check` on this frame (``schedule=``, ``windows=``, ``day=`` as there)."""
         from .check import check
 
-        return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes)
+        return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes, **plan)
 
-    def apply(self, derivation: Any) -> pd.DataFrame:
+    def apply(self, derivation: Any, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
         """Apply a :class:`~panelfx.Derivation` (or the path of a saved one) to this frame."""
         from .derivation import Derivation
 
@@ -67,7 +67,7 @@ class PanelAccessor:
         if not isinstance(derivation, Derivation):
             raise OptionError(f"apply needs a panelfx.Derivation or the path of a saved one, "
                               f"got {type(derivation).__name__}")
-        return derivation.apply(self._frame)
+        return derivation.apply(self._frame, tables)
 
     @property
     def provenance(self) -> dict[str, Any]:

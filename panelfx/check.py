@@ -8,6 +8,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ._check_visits import planned_findings, window_findings
+from ._interval_check import interval_findings
 from ._panel import Panel, as_id_list, require_columns, time_kind
 from .errors import OptionError
 
@@ -23,6 +25,8 @@ PROBLEMS = {
     "early": "warning",
     "late": "warning",
     "extra": "warning",
+    "no_day": "warning",
+    "interval_data": "warning",
     "single_occasion": "note",
     "not_in_order": "note",
 }
@@ -36,6 +40,10 @@ def check(
     spacing: Any = None,
     tolerance: Any = None,
     notes: bool = False,
+    order: str | None = None,
+    schedule: Sequence[Any] | None = None,
+    windows: Any = None,
+    day: str | None = None,
 ) -> pd.DataFrame:
     """Report structural problems of a long-format panel; an empty frame when all is well.
 
@@ -54,7 +62,28 @@ def check(
       ``missed`` for each scheduled occasion between two visits that has no visit (its
       ``time`` is the planned time), ``extra`` for a second visit matched to the same
       scheduled occasion.  Scheduled occasions after a subject's last visit are not
+      reported: the end of planned follow-up is not known here.  Each occasion goes to
+      the nearest scheduled one (the earlier on a tie); of several matched to one, the
+      nearest is the visit and the others are ``extra`` (never also early or late), so a
+      visit is reported at most once.
+    - ``order`` (a column that orders rows sharing a time, as in :func:`derive`): rows tied
+      in time but told apart by it are not duplicates;
+    - with ``schedule`` (planned times that need not be evenly spaced, counted from each
+      subject's first occasion, e.g. ``[0, 182, 365, 730]`` days or ``["0D", "182D", ...]``
+      for datetimes) and ``tolerance`` (one value, or one per planned time): the same
+      findings as with ``spacing``; ``spacing=s`` is ``schedule=[0, s, 2s, ...]``.
+    - with ``windows`` (a :func:`panelfx.windows` value in study days, read from ``day``
+      or from the time column when it holds numbers): each occasion goes to the window
+      that holds its day, exactly as :func:`panelfx.analysis_visit` assigns it; ``early``
+      / ``late`` for one outside every window (against the nearest target), ``extra`` for
+      one that shares a window with an occasion nearer the target, ``missed`` for a window that starts on or before the
+      subject's last day (always the first window) with no occasion (``time`` is the target
+      when the time column holds the study days), ``no_day`` where the day is missing.
       reported: the end of planned follow-up is not known here.
+    - ``interval_data``: another column of times looks like the stop of (start, stop]
+      intervals that begin at ``time`` (never before it, equal to the next row's time on most
+      rows): events happen at the stop, so ``time=start`` is wrong for transforms of an event
+      flag (warning, once per such column);
     - with ``notes=True`` also ``single_occasion`` subjects and ``not_in_order`` (once,
       when rows are not grouped by subject in time order; harmless for panelfx).
 
@@ -85,7 +114,7 @@ def check(
 
     keep = ~(null_id | null_time)
     sub = frame if keep.all() else frame.loc[keep]
-    panel = Panel(sub, id=id_cols, time=time, strict=False)
+    panel = Panel(sub, id=id_cols, time=time, order=order, strict=False)
     positions = np.flatnonzero(keep)  # frame positions of sub's rows
 
     if notes and panel.ordering.order is not None:
@@ -101,10 +130,26 @@ def check(
         detail = pd.Series(counts[where]).astype(str) + " rows share this (id, time)"
         parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(where)], "duplicate", detail))
 
-    if spacing is not None:
-        parts.extend(_schedule(frame, panel, positions, id_cols, time, spacing, tolerance))
+    plans = [k for k, v in (("spacing", spacing), ("schedule", schedule), ("windows", windows)) if v is not None]
+    if len(plans) > 1:
+        raise OptionError(f"give one of spacing=, schedule= or windows=, not {' and '.join(plans)}")
+    if day is not None and windows is None:
+        raise OptionError("day= (a column of study days) goes with windows=")
+
+    def rows(pos: np.ndarray, problem: str, detail: Any) -> pd.DataFrame:
+        return _rows(frame, id_cols, time, pos, problem, detail)
+
+    if spacing is not None or schedule is not None:
+        parts.extend(planned_findings(panel, positions, rows, spacing=spacing, schedule=schedule,
+                                      tolerance=tolerance))
+    elif windows is not None:
+        if tolerance is not None:
+            raise OptionError("tolerance= does not go with windows= (the windows hold their own bounds)")
+        parts.extend(window_findings(panel, positions, rows, windows=windows, day=day))
     elif tolerance is not None:
         raise OptionError("tolerance= needs spacing= (the planned interval between occasions)")
+
+    parts.extend(interval_findings(frame, panel, positions, id_cols, time, _rows))
 
     if notes:
         single = np.flatnonzero(panel.subjects.lengths == 1) if panel.n else np.array([], dtype=int)
@@ -115,8 +160,8 @@ def check(
     if not parts:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in REPORT_COLUMNS})
     report = pd.concat(parts, ignore_index=True)
-    order = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
-    report = report.assign(_o=order.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
+    rank = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
+    report = report.assign(_o=rank.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
     return report.reset_index(drop=True)[REPORT_COLUMNS]
 
 
@@ -135,52 +180,3 @@ def _rows(frame: pd.DataFrame, id_cols: Sequence[str], time: str, pos: np.ndarra
         "time": frame[time].iloc[pos].to_numpy(dtype=object),
         "detail": detail if isinstance(detail, str) else np.asarray(detail, dtype=object),
     })
-
-
-def _schedule(frame: pd.DataFrame, panel: Panel, positions: np.ndarray, id_cols: Sequence[str], time: str,
-              spacing: Any, tolerance: Any) -> list[pd.DataFrame]:
-    step = float(panel.span(spacing, "spacing"))
-    if step <= 0:
-        raise OptionError(f"spacing must be positive, got {spacing!r}")
-    tol = step / 4 if tolerance is None else float(panel.span(tolerance, "tolerance"))
-    if tol < 0:
-        raise OptionError(f"tolerance must not be negative, got {tolerance!r}")
-    if panel.n == 0:
-        return []
-    t0 = panel.t[panel.subjects.first]
-    rel = (panel.t - t0).astype("float64")
-    slot = np.rint(rel / step)
-    dev = rel - slot * step
-    parts = []
-
-    def words(x: np.ndarray) -> pd.Series:
-        return pd.Series(panel.duration(x)).round(6).astype(str)
-
-    for problem, mask, text in (("early", dev < -tol, " before"), ("late", dev > tol, " after")):
-        where = np.flatnonzero(mask)
-        if len(where):
-            detail = (words(np.abs(dev[where])) + text + " scheduled occasion "
-                      + pd.Series(slot[where]).astype(int).astype(str)
-                      + f" (tolerance {float(panel.duration(np.array([tol]))[0])})")
-            parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(where)], problem, detail))
-
-    prev_slot = np.where(panel.subjects.pos > 0, np.roll(slot, 1), np.nan)
-    gap = np.where(panel.repeated, 0, slot - prev_slot - 1)
-    extra = np.flatnonzero((gap == -1) & ~panel.repeated)
-    if len(extra):
-        detail = "second visit matched to scheduled occasion " + pd.Series(slot[extra]).astype(int).astype(str)
-        parts.append(_rows(frame, id_cols, time, positions[panel.original_positions(extra)], "extra", detail))
-    n_missed = np.where(gap > 0, gap, 0).astype(np.int64)
-    if n_missed.any():
-        after = np.repeat(np.arange(panel.n), n_missed)  # the visit that follows each missed slot
-        k = np.arange(len(after)) - np.repeat(np.cumsum(n_missed) - n_missed, n_missed)
-        missed_slot = prev_slot[after] + 1 + k
-        expected = t0[after] + (missed_slot * step).astype(panel.t.dtype)
-        pos = positions[panel.original_positions(after)]
-        part = _rows(frame, id_cols, time, pos, "missed", "")
-        part["row"] = None
-        part["time"] = panel.native_to_time(expected).to_numpy(dtype=object)
-        part["detail"] = ("scheduled occasion " + pd.Series(missed_slot).astype(int).astype(str)
-                          + " has no visit").to_numpy(dtype=object)
-        parts.append(part)
-    return parts

@@ -2,11 +2,11 @@
 
 - ``check INPUT --id COL --time COL [--spacing S] [--tolerance T]``: print the structure
   report of :func:`panelfx.check`.
-- ``apply DERIVATION INPUT -o OUTPUT``: apply a saved :class:`~panelfx.Derivation` to a
-  CSV or Parquet file and write Parquet or CSV.  On Parquet bigger than memory (a folder,
-  or ``--memory`` / ``--partitions`` / ``--workers`` / ``--row-number``) it works subject
-  by subject through hash partitions on disk and writes a folder of parts
-  (:mod:`panelfx._bigfile`).
+- ``apply DERIVATION INPUT -o OUTPUT [--table NAME=PATH ...]``: apply a saved
+  :class:`~panelfx.Derivation` to a CSV or Parquet file (with the side tables it reads)
+  and write Parquet or CSV.  On Parquet bigger than memory (a folder, or ``--memory`` /
+  ``--partitions`` / ``--workers`` / ``--row-number``) it works subject by subject through
+  hash partitions on disk and writes a folder of parts (:mod:`panelfx._bigfile`).
 - ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
 
 Files are read and written through pyarrow; the format follows the extension (``.csv``,
@@ -293,15 +293,18 @@ def _check(argv: list[str]) -> int:
                         help="planned interval between occasions: a number, or a span such as 30D for dates")
     parser.add_argument("--tolerance", type=_number_or_text, metavar="T",
                         help="allowed distance from the planned time (default a quarter of --spacing)")
+    parser.add_argument("--order", metavar="COL",
+                        help="column that orders rows sharing a subject and time (tied rows are then no duplicates)")
     parser.add_argument("--notes", action="store_true", help="also report single-occasion subjects and row order")
     parser.add_argument("--csv", action="store_true", help="print every finding as CSV instead of a table")
     _input_options(parser, quiet="no progress on stderr")
     args = parser.parse_args(argv)
     progress = Progress("check", args.quiet, summary=False)
-    frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys([*args.id, args.time])],
+    keys = [*args.id, args.time, *([args.order] if args.order else [])]
+    frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys(keys)],
                        text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress)
     report = check(frame, id=args.id if len(args.id) > 1 else args.id[0], time=args.time,
-                   spacing=args.spacing, tolerance=args.tolerance, notes=args.notes)
+                   spacing=args.spacing, tolerance=args.tolerance, notes=args.notes, order=args.order)
     fatal = int((report["severity"] == "fatal").sum())
     if args.csv:
         report.to_csv(sys.stdout, index=False)
@@ -316,6 +319,38 @@ def _check(argv: list[str]) -> int:
             print(f"... and {len(report) - SHOW_FINDINGS:,} more (--csv prints every finding)")
         print("row is the 0-based position of the data row in the file")
     return 1 if fatal else 0
+
+
+def _table_option(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--table", action="append", default=[], metavar="NAME=PATH",
+                        help="a side table the derivation reads (e.g. --table labs=labs.parquet); repeatable")
+
+
+def _read_tables(specs: Sequence[str], derivation: Derivation, text: Sequence[str],
+                 progress: Progress, *, required: bool) -> dict[str, pd.DataFrame]:
+    """--table NAME=PATH options: checked against the tables the derivation reads, then read."""
+    given: dict[str, str] = {}
+    for spec in specs:
+        name, sep, path = spec.partition("=")
+        if not sep or not name or not path:
+            raise UsageError(f"--table expects NAME=PATH, got {spec!r}")
+        if name in given:
+            raise UsageError(f"--table {name} is given twice")
+        given[name] = path
+    needed = derivation.tables()
+    unknown = [n for n in given if n not in needed]
+    if unknown:
+        raise UsageError(f"--table {unknown[0]}: the derivation reads no table of that name "
+                         f"(it reads: {', '.join(needed) or 'none'})")
+    lacking = [n for n in needed if n not in given]
+    if lacking and required:
+        raise UsageError(f"the derivation reads side table(s) {', '.join(lacking)}: give --table "
+                         f"{lacking[0]}=PATH")
+    for name, path in given.items():
+        file_format(path, None, "input")
+        if not os.path.exists(path):
+            raise FileNotFoundError(f"side table file {path!r} (--table {name}) does not exist")
+    return {name: read_frame(path, None, text_columns=text, progress=progress) for name, path in given.items()}
 
 
 def _input_options(parser: argparse.ArgumentParser, *, quiet: str) -> None:
@@ -333,6 +368,7 @@ def _apply(argv: list[str]) -> int:
     parser.add_argument("input", help="CSV or Parquet file")
     parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv")
     parser.add_argument("--output-format", choices=["csv", "parquet"])
+    _table_option(parser)
     _input_options(parser, quiet="no progress or summary on stderr")
     big = parser.add_argument_group(
         "data bigger than memory", "A Parquet folder as input, or any of these options, works subject by subject "
@@ -360,10 +396,14 @@ def _apply(argv: list[str]) -> int:
 
         _require(pq.read_schema(args.input).names, [*derivation.id_cols, derivation.time, *derivation.inputs()],
                  args.input)
+    tables = _read_tables(args.table, derivation, args.text, progress, required=True)
     frame = read_frame(args.input, args.input_format, text_columns=args.text, progress=progress)
-    result = derivation.apply(frame)
+    result = derivation.apply(frame, tables)
     progress.say(f"derived {len(derivation.outputs())} column(s): {', '.join(derivation.outputs())}")
     record = {**result.attrs[ATTRS_KEY], "input": os.path.basename(args.input)}
+    if tables:
+        record["tables"] = {name: os.path.basename(path) for name, path in
+                            (spec.partition("=")[::2] for spec in args.table)}
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
     write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
     return 0
@@ -372,6 +412,9 @@ def _apply(argv: list[str]) -> int:
 def _apply_partitioned(derivation: Derivation, args: argparse.Namespace, progress: Progress) -> int:
     from ._bigfile import apply_partitioned, parse_size
 
+    if args.table or derivation.tables():
+        raise UsageError("side tables (--table) are not supported by the partitioned apply yet; for data bigger "
+                         "than memory with side tables use panelfx.dask.derive(..., tables=)")
     if not os.path.isdir(args.input) and file_format(args.input, args.input_format, "input") != "parquet":
         raise UsageError("data bigger than memory is read from Parquet (a file or a folder): convert the CSV first")
     if args.output_format == "csv":
@@ -397,14 +440,17 @@ def _dictionary(argv: list[str]) -> int:
     parser.add_argument("derivation", help="saved derivation (JSON)")
     parser.add_argument("input", nargs="?", help="optional CSV or Parquet file: fills in the dtypes of the result")
     parser.add_argument("--csv", action="store_true", help="print CSV instead of a table")
+    _table_option(parser)
     _input_options(parser, quiet="no progress on stderr")
     args = parser.parse_args(argv)
     derivation = Derivation.load(args.derivation)
     frame = None
+    tables = _read_tables(args.table, derivation, args.text, Progress("dictionary", args.quiet, summary=False),
+                          required=args.input is not None)
     if args.input is not None:
         frame = read_frame(args.input, args.input_format, text_columns=args.text,
                            progress=Progress("dictionary", args.quiet, summary=False))
-    table = derivation.dictionary(frame)
+    table = derivation.dictionary(frame, tables)
     if args.csv:
         table.to_csv(sys.stdout, index=False)
         return 0

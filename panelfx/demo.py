@@ -265,4 +265,124 @@ def main(argv: Sequence[str] | None = None) -> int:
     return 0
 
 
-__all__ = ["cohort", "main", "history_transforms", "SCENARIO"]
+# ---------------------------------------------------------------------------- nested data
+#: The invented nested scenario, stored in ``frame.attrs["invented"]`` by :func:`rehab`.
+REHAB_SCENARIO = (
+    "INVENTED DATA: the Marlow Coast Cardiac Rehabilitation Programme (a made-up programme) "
+    "follows patients of clinics grouped in regions through 24 weeks of exercise-based "
+    "rehabilitation. No real people, clinics or programme."
+)
+
+#: Names of the invented regions; ``n_regions`` takes the first ones.
+REGIONS = ("Northmoor", "Eastfen", "Southvale", "Westmarch", "Highcombe", "Lowfield")
+
+#: The invented recovery patterns of the walking distance, with their shares of patients.
+PATTERNS = {"steady": 0.40, "early": 0.35, "flat": 0.25}
+
+
+def rehab(
+    n_regions: int = 5,
+    *,
+    seed: int = 2027,
+    clinics: tuple[int, int] = (4, 6),
+    patients: tuple[int, int] = (6, 12),
+    sd: tuple[float, float, float, float] = (2.0, 2.5, 5.0, 3.5),
+    within_effect: float = -0.05,
+    between_effect: float = -0.12,
+    shuffle: bool = True,
+) -> pd.DataFrame:
+    """An invented, nested rehabilitation cohort: regions > clinics > patients > visits.
+
+    **Invented scenario**: the *Marlow Coast Cardiac Rehabilitation Programme* (it does
+    not exist) runs clinics in ``n_regions`` regions; each patient is seen at weeks 0, 2,
+    ..., 24 of the programme, a few days early or late, with about 8% of visits missed
+    and about 10% of patients stopping after week 12.  Same ``seed``, same frame.
+
+    Columns: ``region`` (str), ``clinic`` (int, restarting at 1 in every region),
+    ``patient`` (int, restarting at 1 in every clinic), so the patient id is
+    ``["region", "clinic", "patient"]``; ``week`` (float, weeks since the patient's start,
+    one decimal); ``exercise_min`` (weekly minutes of exercise reported at the visit);
+    ``rest_hr`` (resting heart rate, beats per minute, about 3% missing); ``walk_m``
+    (six-minute walk distance, metres); ``pattern`` (the generator's recovery pattern of
+    the patient, "steady", "early" or "flat": a known answer for trajectory grouping).
+
+    **The true model.**  ``rest_hr = 72 + a_region + b_clinic + c_patient
+    + between_effect * (m_patient - 150) + within_effect * (exercise_min - m_patient) + e``
+    with independent normal effects of standard deviations ``sd`` (region, clinic,
+    patient, visit) and ``m_patient`` the patient's usual weekly exercise (its mean over
+    visits but for noise).  So ``within_effect`` (default -0.05 bpm per minute) is what
+    more exercise in a week does to a patient's heart rate, and ``between_effect`` (-0.12)
+    how patients who usually exercise more differ.  ``walk_m`` starts at a patient level
+    near 380 m and then follows its pattern: "steady" gains 6 m a week, "early" gains 100 m
+    mostly in the first six weeks, "flat" loses 1 m a week; visit noise sd 12 m.
+    ``frame.attrs["truth"]`` holds the effects and the variance components of
+    ``rest_hr`` the model implies per level (the exercise terms included).
+
+    >>> df = rehab(2, seed=1, shuffle=False)
+    >>> df.columns.tolist()
+    ['region', 'clinic', 'patient', 'week', 'exercise_min', 'rest_hr', 'walk_m', 'pattern']
+    >>> df.attrs["invented"].startswith("INVENTED")
+    True
+    """
+    if isinstance(n_regions, bool) or not isinstance(n_regions, (int, np.integer)) \
+            or not 1 <= n_regions <= len(REGIONS):
+        raise ValueError(f"n_regions must be between 1 and {len(REGIONS)}, got {n_regions!r}")
+    rng = np.random.default_rng(seed)
+    # -- units: regions > clinics > patients, numbers restarting within each parent ----------
+    n_clin = rng.integers(clinics[0], clinics[1] + 1, size=n_regions)
+    clin_region = np.repeat(np.arange(n_regions), n_clin)
+    clin_number = np.arange(len(clin_region)) - np.repeat(np.cumsum(n_clin) - n_clin, n_clin) + 1
+    n_pat = rng.integers(patients[0], patients[1] + 1, size=len(clin_region))
+    pat_clinic = np.repeat(np.arange(len(clin_region)), n_pat)
+    pat_number = np.arange(len(pat_clinic)) - np.repeat(np.cumsum(n_pat) - n_pat, n_pat) + 1
+    n = len(pat_clinic)
+    a = sd[0] * rng.standard_normal(n_regions)
+    b = sd[1] * rng.standard_normal(len(clin_region))
+    c = sd[2] * rng.standard_normal(n)
+    clinic_push = 15.0 * rng.standard_normal(len(clin_region))  # some clinics get patients moving more
+    usual = np.clip(150.0 + clinic_push[pat_clinic] + 35.0 * rng.standard_normal(n), 20.0, None)
+    pattern = rng.choice(list(PATTERNS), size=n, p=list(PATTERNS.values()))
+    start_walk = 380.0 + 45.0 * rng.standard_normal(n)
+    stops = rng.random(n) < 0.10
+
+    # -- visits: weeks 0, 2, ..., 24 -----------------------------------------------------------
+    planned = np.arange(0, 25, 2)
+    pid = np.repeat(np.arange(n), len(planned))
+    k = np.tile(planned, n)
+    week = np.round(k + np.where(k > 0, rng.uniform(-0.4, 0.4, size=len(k)), 0.0), 1)
+    keep = ((rng.random(len(k)) >= 0.08) | (k == 0)) & ~(stops[pid] & (k > 12))
+    pid, week = pid[keep], week[keep]
+    m = len(pid)
+    exercise = np.clip(np.round((usual[pid] + 30.0 * rng.standard_normal(m)) / 5) * 5, 0, None)
+    hr = (72.0 + a[clin_region[pat_clinic[pid]]] + b[pat_clinic[pid]] + c[pid]
+          + between_effect * (usual[pid] - 150.0) + within_effect * (exercise - usual[pid])
+          + sd[3] * rng.standard_normal(m))
+    hr = np.where(rng.random(m) < 0.03, np.nan, np.round(hr, 1))
+    gain = np.select([pattern[pid] == "steady", pattern[pid] == "early"],
+                     [6.0 * week, 100.0 * (1 - np.exp(-week / 2.5))], -1.0 * week)
+    walk = np.round(start_walk[pid] + gain + 12.0 * rng.standard_normal(m))
+
+    frame = pd.DataFrame({
+        "region": np.asarray(REGIONS, dtype=object)[clin_region[pat_clinic[pid]]],
+        "clinic": clin_number[pat_clinic[pid]].astype(np.int64),
+        "patient": pat_number[pid].astype(np.int64),
+        "week": week,
+        "exercise_min": exercise,
+        "rest_hr": hr,
+        "walk_m": walk,
+        "pattern": np.asarray(pattern, dtype=object)[pid],
+    })
+    if shuffle:
+        frame = frame.iloc[rng.permutation(m)].reset_index(drop=True)
+    # variance of usual exercise (across patients) and of the weekly noise feed the truth
+    spread = float(np.var(usual)) * between_effect**2
+    frame.attrs["invented"] = REHAB_SCENARIO
+    frame.attrs["truth"] = {
+        "within_effect": within_effect, "between_effect": between_effect,
+        "rest_hr_components": {"region": sd[0] ** 2, "clinic": sd[1] ** 2, "patient": sd[2] ** 2 + spread,
+                               "residual": sd[3] ** 2 + within_effect**2 * 30.0**2},
+    }
+    return frame
+
+
+__all__ = ["cohort", "main", "history_transforms", "SCENARIO", "rehab", "REHAB_SCENARIO"]

@@ -38,7 +38,7 @@ from typing import Any, Literal, Union
 import numpy as np
 import pandas as pd
 
-from ._panel import UNITS_NS, as_id_list, time_kind
+from ._panel import UNITS_NS, as_id_list, key_column, time_kind
 from ._transform import REGISTRY, Transform
 from .derive import derive, plan
 from .errors import OptionError, PanelError
@@ -102,6 +102,8 @@ class Derivation:
     unit: str | None
     transforms: tuple[Transform, ...]
     description: str
+    order: str | None
+    time_unit: str | None
 
     def __init__(
         self,
@@ -110,6 +112,8 @@ class Derivation:
         time: str,
         unit: str | None = None,
         description: str = "",
+        order: str | None = None,
+        time_unit: str | None = None,
     ) -> None:
         ids = as_id_list(id)
         if not isinstance(time, str) or not time:
@@ -120,6 +124,10 @@ class Derivation:
             raise OptionError(f"unit must be one of {sorted(UNITS_NS)} or None, got {unit!r}")
         if not isinstance(description, str):
             raise OptionError(f"description must be a string, got {description!r}")
+        if order is not None and (not isinstance(order, str) or not order or order in (*ids, time)):
+            raise OptionError(f"order must name a column other than the id and time columns, got {order!r}")
+        if time_unit is not None and time_unit not in UNITS_NS:
+            raise OptionError(f"time_unit must be one of {sorted(UNITS_NS)} or None, got {time_unit!r}")
         if len(transforms) == 1 and isinstance(transforms[0], (list, tuple)):
             transforms = tuple(transforms[0])  # Derivation([t1, t2], ...) reads naturally too
         plan(None, transforms, ids, time)  # the order checks that need no frame
@@ -128,6 +136,8 @@ class Derivation:
         object.__setattr__(self, "unit", unit)
         object.__setattr__(self, "transforms", tuple(transforms))
         object.__setattr__(self, "description", description)
+        object.__setattr__(self, "order", order)
+        object.__setattr__(self, "time_unit", time_unit)
 
     # -------------------------------------------------------------- what it does
     @property
@@ -145,6 +155,11 @@ class Derivation:
             made.update(tr.outputs())
         return tuple(need)
 
+    def tables(self) -> tuple[str, ...]:
+        """Names of the side tables ``apply`` needs (``tables={name: frame}``), in order of first use.
+        The derivation stores only these names and the columns read, never data."""
+        return tuple(dict.fromkeys(use.name for tr in self.transforms for use in tr.tables()))
+
     def outputs(self) -> tuple[str, ...]:
         """Names of the columns ``apply`` adds, in order."""
         return tuple(name for tr in self.transforms for name in tr.outputs())
@@ -155,7 +170,8 @@ class Derivation:
         added: list[Transform] = []
         for item in more:
             if isinstance(item, Derivation):
-                if (item.id_cols, item.time, item.unit) != (self.id_cols, self.time, self.unit):
+                if (item.id_cols, item.time, item.unit, item.order, item.time_unit) != \
+                        (self.id_cols, self.time, self.unit, self.order, self.time_unit):
                     raise OptionError(
                         f"cannot extend a derivation of (id={self.id!r}, time={self.time!r}, unit={self.unit!r}) "
                         f"with one of (id={item.id!r}, time={item.time!r}, unit={item.unit!r})"
@@ -164,10 +180,11 @@ class Derivation:
             else:
                 added.append(item)
         return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
-                          description=self.description)
+                          description=self.description, order=self.order, time_unit=self.time_unit)
 
-    def apply(self, frame: pd.DataFrame, **dask_options: Any) -> pd.DataFrame:
-        """``derive(frame, *transforms, id=, time=, unit=)``, with the provenance (this
+    def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
+              threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
+        """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
         derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
         already on the input is kept under ``"previous"``.
 
@@ -176,11 +193,14 @@ class Derivation:
         if type(frame).__module__.startswith("dask."):  # no import of dask unless it is in use
             from .dask import apply as apply_dask
 
-            return apply_dask(self, frame, **dask_options)
+            if threads is not None:
+                raise OptionError("threads= does not apply to dask DataFrames: Dask's workers set the parallelism")
+            return apply_dask(self, frame, tables=tables, **dask_options)
         if dask_options:
             raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
                               f"{type(frame).__name__}")
-        out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit)
+        out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
+                     time_unit=self.time_unit, tables=tables, threads=threads)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
             "dictionary": _dictionary_records(self._dictionary_from_result(out)),
@@ -192,10 +212,11 @@ class Derivation:
         return out
 
     # -------------------------------------------------------------- data dictionary
-    def dictionary(self, frame: pd.DataFrame | None = None) -> pd.DataFrame:
+    def dictionary(self, frame: pd.DataFrame | None = None,
+                   tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
         """One row per output column: ``column``, ``step`` (the transform's number, from 1),
         ``transform`` (type name), ``sources`` (the columns it reads besides id and time,
-        comma-separated; empty when it uses only id and time), ``description`` (the
+        comma-separated, side-table columns as ``labs.alt``; empty when it uses only id and time), ``description`` (the
         options in words), ``past_only``, ``dtype`` and ``time_unit``.
 
         ``past_only`` is True only when the transform is past-only *and* every derived
@@ -206,8 +227,10 @@ class Derivation:
         integers can become floats where values are missing); without a frame it is
         missing (``None``), since most outputs keep or depend on the input's dtype.
 
-        ``time_unit`` is the unit of durations, rates and areas: ``unit`` (default "D",
-        days) for datetime times, the time column's own units for numeric times.
+        ``time_unit`` is the unit of outputs that carry one: durations (gaps, times since),
+        rates (per unit of time) and areas (value x time): ``unit`` (default "D", days) for
+        datetime times and declared numeric ones, else the time column's own units.  It is
+        empty for outputs that carry no time unit (a carried value, a count).
 
         >>> import panelfx as pfx
         >>> d = pfx.Derivation(pfx.baseline("sbp"), pfx.lag("sbp_baseline"), id="pid", time="day")
@@ -217,32 +240,36 @@ class Derivation:
         1  sbp_baseline_lag1     2       lag  sbp_baseline      False
         """
         if frame is not None:
-            return self._dictionary_from_result(self.apply(frame))
-        if self.unit is not None:
-            unit = _unit_words(self.unit)
+            return self._dictionary_from_result(self.apply(frame, tables))
+        if self.unit is not None or self.time_unit is not None:
+            unit = _unit_words(self.unit or self.time_unit or "D")
         else:
             unit = f"{_unit_words('D')} for datetime times, else the units of {self.time!r}"
         return self._dictionary(dtypes={}, time_unit=unit)
 
     def _dictionary_from_result(self, result: pd.DataFrame) -> pd.DataFrame:
-        kind = time_kind(result[self.time])
-        unit = f"the units of {self.time!r}" if kind == "number" else _unit_words(self.unit or "D")
+        kind = time_kind(key_column(result, self.time))
+        if kind == "number" and self.time_unit is None:
+            unit = f"the units of {self.time!r}"
+        else:
+            unit = _unit_words(self.unit or self.time_unit or "D")
         return self._dictionary(dtypes={c: str(result[c].dtype) for c in self.outputs()}, time_unit=unit)
 
     def _dictionary(self, dtypes: Mapping[str, str], time_unit: str) -> pd.DataFrame:
         rows = []
         past: dict[str, bool] = {}
         for step, tr in enumerate(self.transforms, start=1):
-            sources = tr.inputs()
+            sources = (*tr.inputs(), *(f"{u.name}.{c}" for u in tr.tables() for c in u.all_columns()))
             only_past = bool(tr.past_only) and all(past.get(c, True) for c in sources)
             outs = tr.outputs()
+            kinds = tr.unit_kinds(self.time)
             for k, name in enumerate(outs, start=1):
                 past[name] = only_past
                 words = tr.describe() if len(outs) == 1 else f"{tr.describe()} [output {k} of {len(outs)}]"
                 rows.append({
                     "column": name, "step": step, "transform": tr.type_name, "sources": ", ".join(sources),
                     "description": words, "past_only": only_past, "dtype": dtypes.get(name),
-                    "time_unit": time_unit,
+                    "time_unit": _unit_of(kinds[k - 1], time_unit, tr),
                 })
         return dictionary_frame(rows)
 
@@ -257,6 +284,11 @@ class Derivation:
                       "unit": self.unit},
             "transforms": [],
         }
+        # written only when set, so files of panels without them read as before
+        if self.order is not None:
+            doc["panel"]["order"] = self.order
+        if self.time_unit is not None:
+            doc["panel"]["time_unit"] = self.time_unit
         for i, tr in enumerate(self.transforms):
             path = f"transforms[{i}]"
             options = {f.name: _plain(getattr(tr, f.name), f"{path}.options.{f.name}", tr)
@@ -290,7 +322,7 @@ class Derivation:
         _expect(description, str, "description", "must be a string")
         panel = _required(doc, "panel", "")
         _expect(panel, dict, "panel", "must be an object with keys id, time, unit")
-        _no_unknown(panel, ("id", "time", "unit"), "panel")
+        _no_unknown(panel, ("id", "time", "unit", "order", "time_unit"), "panel")
         id_ = _required(panel, "id", "panel")
         if isinstance(id_, list):
             if not id_ or not all(isinstance(c, str) and c for c in id_):
@@ -305,11 +337,19 @@ class Derivation:
         if unit is not None and unit not in UNITS_NS:
             raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({unit!r})",
                                       path="panel.unit")
+        order = panel.get("order")
+        if order is not None:
+            _expect(order, str, "panel.order", "must be null or a column name")
+        time_unit = panel.get("time_unit")
+        if time_unit is not None and time_unit not in UNITS_NS:
+            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(time_unit)} "
+                                      f"({time_unit!r})", path="panel.time_unit")
         items = _required(doc, "transforms", "")
         _expect(items, list, "transforms", "must be a list")
         transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
         try:
-            return cls(*transforms, id=id_, time=time, unit=unit, description=description)
+            return cls(*transforms, id=id_, time=time, unit=unit, description=description, order=order,
+                       time_unit=time_unit)
         except PanelError as err:
             where = getattr(err, "position", None)
             raise DerivationFileError(str(err), path="panel" if where is None else f"transforms[{where}]") from None
@@ -330,7 +370,9 @@ class Derivation:
         try:
             doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
         except json.JSONDecodeError as err:
-            hint = " (the file looks truncated)" if err.pos >= len(text.rstrip()) else ""
+            # a string still open at the end of the text is reported where it starts
+            cut = err.pos >= len(text.rstrip()) or err.msg.startswith("Unterminated string")
+            hint = " (the file looks truncated)" if cut else ""
             raise DerivationFileError(
                 f"not valid JSON: {err.msg} at line {err.lineno}, column {err.colno}{hint}") from None
         return cls.from_dict(doc)
@@ -359,6 +401,17 @@ def dictionary_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
     if not rows:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
     return pd.DataFrame(list(rows), columns=DICTIONARY_COLUMNS)
+
+
+def _unit_of(kind: str | None, unit: str, tr: Transform) -> str:
+    """The dictionary's time-unit entry of one output."""
+    if kind is None:
+        return ""
+    if kind == "rate":
+        return f"per {unit}"
+    if kind == "area":
+        return f"{getattr(tr, 'col', 'value')} x {unit}"
+    return unit
 
 
 def _unit_words(unit: str) -> str:

@@ -2,32 +2,40 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+import os
+from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from ._columns import Take
-from ._panel import Panel
+from ._columns import Deferred
+from ._panel import Panel, as_id_list
+from ._tables import check_table_uses, side_tables
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
 
 def plan(
-    columns: Sequence[str] | None, transforms: Sequence[Transform], id_cols: Sequence[str], time: str
+    columns: Sequence[str] | None, transforms: Sequence[Transform], id_cols: Sequence[str], time: str,
+    tables: Mapping[str, Sequence[str]] | None = None,
 ) -> list[str]:
     """Check, before anything is computed, that every transform finds its inputs (in the
     frame or made by an earlier transform) and that no output overwrites a column.
 
     ``columns`` are the frame's columns; ``None`` when no frame is at hand yet (a saved
     derivation): inputs that no transform makes are then assumed to come from the frame.
+    ``tables`` maps the side tables given to their columns: every table a transform reads
+    must be there with the columns it reads (``None``: not checked, no tables at hand).
     Returns the output names in order.  An error's ``position`` is the 0-based index of
     the offending transform.
     """
     made: dict[str, int] = {}
     for i, tr in enumerate(transforms):
         try:
-            _plan_one(i, tr, transforms, made, columns, {*id_cols, time})
+            _plan_one(i, tr, transforms, made, columns, set(id_cols), time)
+            if tables is not None:
+                check_table_uses(tr.tables(), tables, f"transform #{i + 1} ({tr.type_name})", id_cols)
         except PanelError as err:
             err.position = i  # type: ignore[attr-defined]
             raise
@@ -35,7 +43,7 @@ def plan(
 
 
 def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[str, int],
-              columns: Sequence[str] | None, keys: set[str]) -> None:
+              columns: Sequence[str] | None, ids: set[str], time: str) -> None:
     if not isinstance(tr, Transform):
         raise OptionError(
             f"transform #{i + 1} is a {type(tr).__name__}, not a panelfx transform "
@@ -43,10 +51,10 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         )
     what = f"transform #{i + 1} ({tr.type_name})"
     for col in tr.inputs():
-        if col in keys:
-            raise OptionError(f"{what} uses the id or time column {col!r} as a value")
-        if col in made or (columns is not None and col in columns):
-            continue
+        if col in ids and col not in tr.groupings():
+            raise OptionError(f"{what} uses the id column {col!r} as a value")
+        if col == time or col in made or (columns is not None and col in columns) or col in tr.groupings():
+            continue  # the time column may be read as a value (the previous visit's date, say)
         later = [j for j, t in enumerate(transforms[i + 1:], start=i + 2)
                  if isinstance(t, Transform) and col in t.outputs()]
         if later:
@@ -58,7 +66,7 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
         if columns is not None:
             raise MissingColumnError(f"column {col!r} needed by {what} is not in the frame", column=col, count=1)
     for out in tr.outputs():
-        if out in keys:
+        if out in ids or out == time:
             source = "the id or time column"
         elif out in made:
             source = f"also made by transform #{made[out] + 1}"
@@ -77,6 +85,10 @@ def derive(
     id: str | Sequence[str],
     time: str,
     unit: str | None = None,
+    order: str | None = None,
+    time_unit: str | None = None,
+    tables: Mapping[str, pd.DataFrame] | None = None,
+    threads: int | None = None,
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -87,8 +99,25 @@ def derive(
     re-sorted.  A transform may use a column made by an earlier one.
 
     ``id`` names the subject column, or several (e.g. ``["site", "subject"]``); ``time``
-    the occasion time, numbers or datetimes.  ``unit`` (datetime times only; default
-    ``"D"``, days) is the unit of derived durations, rates and areas.
+    the occasion time, numbers or datetimes (either may be an index level).  ``unit``
+    (default ``"D"``, days, for datetimes) is the unit of derived durations, rates and
+    areas; ``time_unit`` declares the unit of numeric times (``"D"`` for days since
+    randomisation), after which ``unit`` converts them too and spans such as ``"30D"`` fit.
+
+    Tied occasions: ``order`` names a column that orders rows sharing a subject and time (a
+    dose record before the sample taken at the same time, say).  Rows then count as
+    successive occasions in (time, order); a row never sees a tied row later in the order,
+    so past-only transforms stay past-only; the gap between tied rows is 0 and a rate over
+    it is missing.  (id, time, order) must be unique.  Physical row order never breaks a tie.
+
+    ``tables`` names side tables (``{"labs": labs, "ex": dosing}``) for the transforms that
+    read records beside the panel (:func:`~panelfx.as_of`, :func:`~panelfx.table_window`,
+    :func:`~panelfx.exposure`); each carries the id columns under the same names, and is
+    validated and ordered once for all transforms.
+
+    ``threads``: transforms that do not read each other's outputs run side by side on this
+    many threads (default: the machine's cores, at most 2; 1 for strictly one).  The
+    results are the same bit for bit whatever the number.
 
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
@@ -103,9 +132,14 @@ def derive(
     r2    1    7  12.0     12.5       -0.5
     r3    1    0  12.5      NaN        0.0
     """
-    panel = Panel(frame, id=id, time=time, unit=unit)
-    names = plan(list(frame.columns), transforms, panel.id_cols, panel.time_col)
-    new = compute_all(panel, transforms)
+    if not isinstance(frame, pd.DataFrame):
+        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
+    # the transform list and the options are checked before any O(n log n) work
+    workers = _threads(threads)
+    names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
+    panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
+    panel.tables = side_tables(panel, tables)
+    new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
     # One concatenation (a column at a time fragments the frame); concat copies, so the input
@@ -114,29 +148,86 @@ def derive(
     return pd.concat([frame, added], axis=1) if new else frame.copy()
 
 
-def compute_all(panel: Panel, transforms: Sequence[Transform]) -> dict[str, pd.Series]:
+def table_columns(tables: Mapping[str, Any] | None) -> dict[str, list[str]]:
+    """Names and columns of the side tables given (for :func:`plan`); checks it is a mapping."""
+    if tables is None:
+        return {}
+    if not isinstance(tables, Mapping):
+        raise OptionError(f"tables must be a mapping of names to data frames, e.g. {{'labs': labs}}, "
+                          f"got {type(tables).__name__}")
+    return {name: list(getattr(t, "columns", [])) for name, t in tables.items()}
+
+
+def compute_all(panel: Panel, transforms: Sequence[Transform], threads: int | None = None) -> dict[str, pd.Series]:
     """Run the transforms on one panel; each output back in the caller's row order, as a Series.
 
-    Transforms return sorted-order results: arrays, or a :class:`~panelfx._columns.Take` for
-    a column whose dtype must be kept.  Each is put back in the caller's order here, once.
+    Transforms return sorted-order results: arrays, or a :class:`~panelfx._columns.Deferred`
+    (a dtype-preserving take, values from a side table).  Each is put back in the caller's
+    order here, once.  Transforms that do not read each other's outputs run side by side on
+    ``threads`` threads (numpy releases the interpreter lock in its kernels); every transform
+    is deterministic and independent of the others, so the results are the same bit for bit
+    whatever the number of threads.
     """
     frame = panel.frame
     new: dict[str, pd.Series] = {}
+    workers = _threads(threads)
+    for stage in _stages(transforms):
+        if workers > 1 and len(stage) > 1:
+            from concurrent.futures import ThreadPoolExecutor
+
+            with ThreadPoolExecutor(max_workers=min(workers, len(stage))) as pool:
+                done = list(pool.map(lambda i: _run_one(panel, transforms, i), stage))
+        else:
+            done = [_run_one(panel, transforms, i) for i in stage]
+        for outputs in done:  # registered in transform order, once the stage is complete
+            for name, v in outputs:
+                s = pd.Series(v, index=frame.index, name=name, copy=False)
+                new[name] = s
+                panel.columns.add(name, s)
+    return {name: new[name] for tr in transforms for name in tr.outputs()}
+
+
+def _run_one(panel: Panel, transforms: Sequence[Transform], i: int) -> list[tuple[str, Any]]:
+    """Transform ``i`` computed and put back in the caller's order: (name, values) per output."""
+    tr = transforms[i]
+    values = tr.compute(panel)
+    outputs = tr.outputs()
+    if len(values) != len(outputs):
+        raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
+                         f"{len(outputs)} outputs {list(outputs)}")
+    done = []
+    for name, v in zip(outputs, values):
+        if isinstance(v, Deferred):  # a Take, or values from a side table
+            v = v.resolve(panel)
+        elif isinstance(v, pd.api.extensions.ExtensionArray):  # a categorical, say: keep its dtype
+            v = v.take(panel.ordering.unsort(np.arange(len(v))))
+        else:
+            v = panel.ordering.unsort(np.asarray(v))
+        done.append((name, v))
+    return done
+
+
+def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
+    """Transforms grouped so that each reads outputs of earlier stages only (in order within a stage)."""
+    stage_of: dict[str, int] = {}
+    stages: list[list[int]] = []
     for i, tr in enumerate(transforms):
-        values = tr.compute(panel)
-        outputs = tr.outputs()
-        if len(values) != len(outputs):
-            raise PanelError(f"transform #{i + 1} ({tr.type_name}) returned {len(values)} arrays for "
-                             f"{len(outputs)} outputs {list(outputs)}")
-        for name, v in zip(outputs, values):
-            if isinstance(v, Take):
-                v = panel.columns.take(v.col, v.rows)
-            else:
-                v = panel.ordering.unsort(np.asarray(v))
-            s = pd.Series(v, index=frame.index, name=name, copy=False)
-            new[name] = s
-            panel.columns.add(name, s)
-    return new
+        k = max((stage_of[c] + 1 for c in tr.inputs() if c in stage_of), default=0)
+        if k == len(stages):
+            stages.append([])
+        stages[k].append(i)
+        for out in tr.outputs():
+            stage_of[out] = k
+    return stages
+
+
+def _threads(threads: int | None) -> int:
+    """Threads to use: ``None`` for the machine's cores, at most 2 (what the kernels gain from); 1 for one."""
+    if threads is None:
+        return min(2, os.cpu_count() or 1)
+    if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
+        raise OptionError(f"threads must be a positive integer or None, got {threads!r}")
+    return threads
 
 
 __all__ = ["derive"]

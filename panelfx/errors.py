@@ -21,9 +21,16 @@ __all__ = [
     "ColumnTypeError",
     "PrecisionError",
     "ColumnExistsError",
+    "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
     "SplitSubjectError",
+    "NestingError",
+    "MissingTableError",
+    "TiedRecordsError",
+    "IntervalError",
+    "FollowUpError",
+    "UnknownSubjectError",
 ]
 
 #: How many offending ids an error message shows.
@@ -93,6 +100,10 @@ class PrecisionError(ColumnTypeError):
     """Values a computation cannot hold exactly, e.g. integers beyond 2**53 read as float64."""
 
 
+class ConflictingTiesError(PanelError, ValueError):
+    """Rows sharing a subject and time disagree on a column that has no rule for combining them."""
+
+
 class ColumnExistsError(PanelError, ValueError):
     """A derived column would overwrite a column that already exists."""
 
@@ -114,6 +125,30 @@ class SplitSubjectError(PanelError, ValueError):
                  ids: Sequence[Any] = (), partitions: Sequence[int] = ()) -> None:
         super().__init__(message, column=column, count=count, ids=ids)
         self.partitions = list(partitions)
+
+
+class NestingError(PanelError, ValueError):
+    """Nested levels that do not nest: a unit (a clinic, a subject) seen under two parents."""
+
+
+class MissingTableError(PanelError, KeyError):
+    """A transform reads a side table (``tables={"labs": ...}``) that was not given."""
+
+
+class TiedRecordsError(PanelError, ValueError):
+    """Records of a side table share subject and time but disagree, and no tie rule was chosen."""
+
+
+class IntervalError(PanelError, ValueError):
+    """Interval records (dosing, dispensing) that cannot be used: an end before its start, or
+    records of one subject that overlap where overlaps are refused."""
+class FollowUpError(PanelError, ValueError):
+    """Follow-up or person-time is not defined: a missing entry, exit, event flag, start or stop, an
+    exit at or before entry, a stop at or before start, or an event count that is not a whole number."""
+
+
+class UnknownSubjectError(PanelError, ValueError):
+    """A side table names subjects that are not in the frame."""
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -72,8 +72,9 @@ def test_matches_reference(type_name, data):
     """derive() equals the per-subject loop reference for each catalogued configuration."""
     entry, case, tr = _draw(data, type_name)
     frame = entry.frame(case)
-    got = pfx.derive(frame, tr, **case.keys)
-    want = reference(frame, tr, **case.keys)
+    tables = entry.tables_for(frame, case)
+    got = pfx.derive(frame, tr, **case.keys, tables=tables)
+    want = reference(frame, tr, **case.keys, tables=tables)
     assert_matches_reference(got, want, list(tr.outputs()), rtol=entry.rtol, id=case.id, time=case.time)
 
 
@@ -85,13 +86,14 @@ def test_invariants_and_past_only(type_name, data):
     when later occasions are cut off (assert_past_only)."""
     entry, case, tr = _draw(data, type_name)
     frame = entry.frame(case)
-    got = pfx.derive(frame, tr, **case.keys)
+    tables = entry.tables_for(frame, case)
+    got = pfx.derive(frame, tr, **case.keys, tables=tables)
     for k in entry.constant:
         assert_constant_within(got, tr.outputs()[k], id=case.id)
     for k in entry.non_decreasing:
         assert_non_decreasing_within(got, tr.outputs()[k], **case.keys)
     if tr.past_only:
-        assert_past_only(frame, tr, **case.keys, max_ranks=None)
+        assert_past_only(frame, tr, **case.keys, max_ranks=None, tables=tables)
 
 
 @pytest.mark.parametrize(("type_name", "entry"), ENTRIES, ids=[e.label for _, e in ENTRIES])
@@ -118,6 +120,9 @@ def test_many_transforms_in_one_derive(case):
     frame = case.frame
     for prepare in dict.fromkeys(e.prepare for _, e in ENTRIES if e.prepare is not None):
         frame = prepare(frame, case)
+    tables: dict = {}
+    for _, e in ENTRIES:
+        tables.update(e.tables_for(frame, case) or {})
     chain = []
     seen: set[str] = set(frame.columns)
     for i, (_, entry) in enumerate(ENTRIES):
@@ -127,10 +132,10 @@ def test_many_transforms_in_one_derive(case):
         if seen.isdisjoint(tr.outputs()):
             chain.append(tr)
             seen.update(tr.outputs())
-    together = pfx.derive(frame, *chain, **case.keys)
+    together = pfx.derive(frame, *chain, **case.keys, tables=tables)
     assert list(together.columns) == [*frame.columns, *[c for tr in chain for c in tr.outputs()]]
     for tr in chain:
-        alone = pfx.derive(frame, tr, **case.keys)
+        alone = pfx.derive(frame, tr, **case.keys, tables=tables)
         assert_matches_reference(together, alone, list(tr.outputs()), rtol=0, atol=0, id=case.id, time=case.time)
 
 

@@ -181,7 +181,7 @@ def test_every_transform_checks_column_and_name_options(type_name, entry):
     ({"id": ["pid", 3]}, "id must be a column name or a list"),
     ({"time": 3}, "time must be a column name"),
     ({"time": "pid"}, "also an id column"),
-    ({"unit": "D"}, "applies to datetime or timedelta times only"),
+    ({"unit": "D"}, "numeric times whose unit is declared with time_unit="),
 ])
 def test_wrong_declaration(kw, message):
     with pytest.raises(OptionError, match=message):
@@ -201,8 +201,8 @@ def test_not_a_transform_or_not_a_frame():
         run(visits(), pfx.lag("y"), "lag")
     with pytest.raises(TypeError, match="expected a pandas DataFrame"):
         pfx.derive(visits().to_dict(), pfx.lag("y"), id="pid", time="t")
-    with pytest.raises(OptionError, match="uses the id or time column"):
-        run(visits(), pfx.lag("t"))
+    with pytest.raises(OptionError, match="uses the id column"):
+        run(visits(), pfx.lag("pid"))
 
 
 def test_every_error_is_a_panel_error_and_a_builtin():
@@ -236,13 +236,17 @@ def test_input_frame_is_unchanged(type_name, entry, kind):
     frame = entry.frame(case)
     before = frame.copy(deep=True)
     tr = entry.make(PanelCase(frame, "pid", "t"))
-    out = pfx.derive(frame, tr, id="pid", time="t")
+    tables = entry.tables_for(frame, case)
+    tables_before = {k: v.copy(deep=True) for k, v in (tables or {}).items()}
+    out = pfx.derive(frame, tr, id="pid", time="t", tables=tables)
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
+    for k, v in (tables or {}).items():  # side tables are never changed either
+        pd.testing.assert_frame_equal(v, tables_before[k], check_exact=True)
     assert list(frame.columns) == list(before.columns) and frame.index.equals(before.index)
     assert list(out.columns) == [*before.columns, *tr.outputs()]
     pd.testing.assert_frame_equal(out[list(before.columns)], before, check_exact=True)
     with pytest.raises(ColumnExistsError):
-        pfx.derive(out, tr, id="pid", time="t")
+        pfx.derive(out, tr, id="pid", time="t", tables=tables)
     pd.testing.assert_frame_equal(frame, before, check_exact=True)
 
 

@@ -125,6 +125,10 @@ def test_refusals(files, capsys):
     assert main(["apply", str(files / "bad.json"), str(files / "visits.parquet"), "-o", str(files / "x"),
                  "--partitions", "2"]) == 2
     assert "'nope'" in capsys.readouterr().err
+    pfx.Derivation(pfx.as_of("labs", "alt", time="drawn"), **KEYS).save(str(files / "side.json"))
+    assert main(["apply", str(files / "side.json"), str(files / "visits.parquet"), "-o", str(files / "x"),
+                 "--partitions", "2"]) == 2
+    assert "side tables" in capsys.readouterr().err
     assert not os.path.exists(files / "x")
 
 

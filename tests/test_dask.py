@@ -16,7 +16,7 @@ import pytest
 import panelfx as pfx
 import panelfx.dask as pfd
 from panelfx._partition import subject_hash
-from panelfx.dask._run import parse, supports
+from panelfx.dask._run import parse
 from panelfx.demo import cohort
 
 KEYS = {"id": ["site", "subject"], "time": "visit_date"}
@@ -302,22 +302,32 @@ def test_side_table_ids_of_another_kind_are_refused(visits):
                          meta=META)
 
 
-@pytest.mark.skipif(supports("tables"), reason="panelfx.derive takes tables= now")
-def test_tables_are_refused_clearly_until_derive_takes_them(visits):
-    with pytest.raises(pfx.OptionError, match="tables= is not supported"):
-        pfd.derive(dd.from_pandas(visits, 2), pfx.lag("sbp"), **KEYS, tables={"labs": labs(visits)})
+def lab_values(visits: pd.DataFrame) -> pd.DataFrame:
+    """An invented side table of lab draws: a few per subject, at times around the visits."""
+    rng = np.random.default_rng(5)
+    draws = visits.sample(frac=0.6, random_state=5)[["site", "subject", "visit_date"]]
+    drawn = draws["visit_date"] - pd.to_timedelta(rng.integers(0, 20, len(draws)), unit="D")
+    out = pd.DataFrame({"site": draws["site"].to_numpy(), "subject": draws["subject"].to_numpy(),
+                        "drawn": drawn.to_numpy(), "alt": rng.normal(30, 6, len(draws)).round(1)})
+    return out.drop_duplicates(["site", "subject", "drawn"])
+
+
+@pytest.mark.parametrize("whole", [False, True])
+def test_side_tables_give_what_single_process_derive_gives(visits, whole):
+    side = lab_values(visits)
+    steps = [pfx.as_of("labs", "alt", time="drawn", within="30D", keep=("value", "age")), pfx.lag("sbp")]
+    ddf = by_subject(visits, 3) if whole else dd.from_pandas(visits, 4)
+    got = pfd.derive(ddf, *steps, **KEYS, tables={"labs": dd.from_pandas(side, 3)}, whole_subjects=whole).compute()
+    want = pfx.derive(visits, *steps, **KEYS, tables={"labs": side})
+    assert_same_rows(got, want, ["alt_asof", "alt_asof_age", "sbp_lag1"])
+    assert want["alt_asof"].notna().sum() > 1000
 
 
 def test_order_is_passed_on_to_derive(visits):
     # tied occasions: 40 visits recorded twice, the copy second by "seq"
     tied = pd.concat([visits.assign(seq=0), visits.iloc[:40].assign(seq=1, sbp=lambda d: d["sbp"] + 1)])
     tied.index = pd.RangeIndex(len(tied)) * 2 + 1
-    ddf = dd.from_pandas(tied, 3)
-    if not supports("order"):
-        with pytest.raises(pfx.OptionError, match="order= is not supported"):
-            pfd.derive(ddf, pfx.lag("sbp"), **KEYS, order="seq")
-        return
-    got = pfd.derive(ddf, pfx.lag("sbp"), pfx.occasion(), **KEYS, order="seq").compute()
+    got = pfd.derive(dd.from_pandas(tied, 3), pfx.lag("sbp"), pfx.occasion(), **KEYS, order="seq").compute()
     want = pfx.derive(tied, pfx.lag("sbp"), pfx.occasion(), **KEYS, order="seq")
     assert_same_rows(got, want, ["sbp_lag1", "occasion"])
 
@@ -336,6 +346,40 @@ def test_subject_summary_equals_single_process(visits):
     # Outside reference: pandas' groupby counts the occasions.
     sizes = visits.groupby(key).size().sort_index()
     assert (got.set_index(key)["n_occasions"].sort_index().to_numpy() == sizes.to_numpy()).all()
+
+
+def same_rows_any_order(got: pd.DataFrame, want: pd.DataFrame, key: list[str]) -> None:
+    """Equal rows, whatever their order; integer and true/false columns may be nullable in the
+    dask result (Int64, boolean), so values are compared with missing as None."""
+    def plain(d):
+        d = d.sort_values(key, kind="stable").reset_index(drop=True)
+        return d.astype(object).where(d.notna(), None)
+    pd.testing.assert_frame_equal(plain(got), plain(want), check_exact=True)
+
+
+def test_collapse_ties_visit_grid_and_episodes_equal_single_process(visits):
+    ddf = dd.from_pandas(visits, 4)
+    tied = pd.concat([visits, visits.iloc[:30].assign(sbp=np.nan)]).reset_index(drop=True)
+    got = pfd.collapse_ties(dd.from_pandas(tied, 3), **KEYS, rules={"sbp": "mean"}).compute()
+    want = pfx.collapse_ties(tied, **KEYS, rules={"sbp": "mean"})
+    # the audit column lists the combined rows' labels in row order, which a shuffle changes
+    def labels(d):
+        return d.assign(source_rows=d["source_rows"].map(lambda r: r if r is None else tuple(sorted(r))))
+    same_rows_any_order(labels(got), labels(want), ["site", "subject", "visit_date"])
+
+    plan = pfx.windows([("Start", -10, 15, 0), ("Month 3", 60, 120, 90), ("Month 6", 150, 210, 180)])
+    pick = pfx.visit_pick("sbp", "nearest", prefer="later")
+    got = pfd.visit_grid(ddf, plan, **KEYS, day="day", pick=pick).compute()
+    same_rows_any_order(got, pfx.visit_grid(visits, plan, **KEYS, day="day", pick=pick),
+                        ["site", "subject", "visit_number"])
+
+    follow = visits.assign(end=visits.groupby(["site", "subject"])["day"].transform("max") + 30)
+    falls = follow.loc[follow["dizzy"], ["site", "subject", "day"]].drop_duplicates(["site", "subject", "day"])
+    options = dict(id=["site", "subject"], time="day", exit="end", covariates=["dose_mg"])
+    got = pfd.episodes(dd.from_pandas(follow, 4), **options, events=falls).compute()
+    want = pfx.episodes(follow, **options, events=falls)
+    assert want["event"].sum() > 100
+    same_rows_any_order(got, want, ["site", "subject", "episode"])
 
 
 def test_check_finds_what_single_process_check_finds(visits):

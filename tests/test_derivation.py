@@ -48,13 +48,16 @@ def test_apply_equals_derive_on_generated_panels(data):
     case = data.draw(panels(time_kinds=kinds, index_kinds=("range", "str", "multi")))
     frame = case.frame
     chosen = []
+    tables: dict = {}
     for i, (_, entry) in enumerate(picks):
         if entry.prepare is not None:
             frame = entry.prepare(frame, case)
         chosen.append(renamed(entry.make(case), i))
+    for _, entry in picks:
+        tables.update(entry.tables_for(frame, case) or {})
     d = pfx.Derivation(*chosen, id=case.id, time=case.time)
-    expected = pfx.derive(frame, *chosen, **case.keys)
-    pd.testing.assert_frame_equal(d.apply(frame), expected)
+    expected = pfx.derive(frame, *chosen, **case.keys, tables=tables)
+    pd.testing.assert_frame_equal(d.apply(frame, tables), expected)
 
 
 def test_order_is_checked_up_front():
@@ -71,7 +74,7 @@ def test_order_is_checked_up_front():
     ("transforms", "error", "match"),
     [
         ((pfx.lag("sbp"), pfx.lag("sbp")), pfx.ColumnExistsError, r"'sbp_lag1' of transform #2 .* also made by transform #1"),
-        ((pfx.lag("day"),), pfx.OptionError, r"uses the id or time column 'day'"),
+        ((pfx.lag("pid"),), pfx.OptionError, r"uses the id column 'pid'"),
         ((pfx.lag("sbp", name="pid"),), pfx.ColumnExistsError, r"'pid' .* is the id or time column"),
         (("lag",), pfx.OptionError, r"transform #1 is a str, not a panelfx transform"),
     ],
@@ -169,7 +172,11 @@ def test_dictionary_without_frame():
     assert table["dtype"].isna().all()
     assert table["description"].iloc[0] == pfx.lag("sbp").describe()
     assert table["description"].iloc[3].endswith("[output 1 of 2]")
-    assert table["time_unit"].iloc[0] == "D (days) for datetime times, else the units of 'day'"
+    assert table["time_unit"].tolist() == [""] * 5  # carried values and means carry no time unit
+    timed = pfx.Derivation(pfx.gap(), pfx.change_from_previous("sbp", "rate"), pfx.cumulative("sbp", "step"),
+                           pfx.change_from_previous("day", name="day_step"), id="pid", time="day").dictionary()
+    unit = "D (days) for datetime times, else the units of 'day'"
+    assert timed["time_unit"].tolist() == [unit, f"per {unit}", f"sbp x {unit}", unit]
 
 
 def test_dictionary_with_frame_and_units():
@@ -179,15 +186,20 @@ def test_dictionary_with_frame_and_units():
     d = pfx.Derivation(pfx.change_from_previous("sbp", "rate"), pfx.lag("sbp"), id="pid", time="day")
     table = d.dictionary(df)
     assert table["dtype"].tolist() == ["float64", "float64"]
-    assert set(table["time_unit"]) == {"the units of 'day'"}
+    assert table["time_unit"].tolist() == ["per the units of 'day'", ""]
     dated = df.assign(day=pd.Timestamp("2024-01-01") + pd.to_timedelta(df["day"], unit="D"))
-    assert set(d.dictionary(dated)["time_unit"]) == {"D (days)"}
+    assert d.dictionary(dated)["time_unit"].tolist() == ["per D (days)", ""]
     weekly = pfx.Derivation(*d.transforms, id="pid", time="day", unit="W")
-    assert set(weekly.dictionary(dated)["time_unit"]) == {"W (weeks)"}
-    assert set(weekly.dictionary()["time_unit"]) == {"W (weeks)"}
+    assert weekly.dictionary(dated)["time_unit"].tolist() == ["per W (weeks)", ""]
+    assert weekly.dictionary()["time_unit"].tolist() == ["per W (weeks)", ""]
+    # numeric days declared with time_unit: the rate per week converts them
+    declared = pfx.Derivation(*d.transforms, id="pid", time="day", unit="W", time_unit="D")
+    assert declared.apply(df).loc["d", "sbp_rate"] == pytest.approx(-4.5)
+    assert declared.dictionary(df)["time_unit"].tolist() == ["per W (weeks)", ""]
+    assert pfx.Derivation.from_json(declared.to_json()) == declared
     # the rate really is per week: 142 - 151 over 14 days = -9 per 2 weeks
     assert weekly.apply(dated).loc["d", "sbp_rate"] == pytest.approx(-4.5)
-    with pytest.raises(pfx.OptionError, match="unit='W' applies to datetime"):
+    with pytest.raises(pfx.OptionError, match="unit='W' converts durations of datetime times"):
         weekly.apply(df)
 
 

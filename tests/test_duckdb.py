@@ -166,7 +166,7 @@ MORE: list[tuple[Callable[[], pfx.Transform], str]] = [
     (lambda: pfx.ever("flag", include_current=False), "coalesce(bool_or(flag) " + PREV + ", false)"),
     (lambda: pfx.time_since("flag"), "{dur}(t, max(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
     (lambda: pfx.time_since("flag", "first"), "{dur}(t, min(CASE WHEN flag THEN t END) " + SO_FAR + ")"),
-    (lambda: pfx.time_since("x", include_current=False), "{dur}(t, max(CASE WHEN x <> 0 THEN t END) " + PREV + ")"),
+    (lambda: pfx.time_since("x", include_current=False, any_nonzero=True), "{dur}(t, max(CASE WHEN x <> 0 THEN t END) " + PREV + ")"),
     # carry forward: last_value(... IGNORE NULLS) over the rows so far (CHECK-SOURCES.md)
     (lambda: pfx.carry_forward("y"), "last_value(y IGNORE NULLS) " + SO_FAR),
     (lambda: pfx.occasion(), "row_number() " + ORD),

@@ -170,3 +170,22 @@ def test_decimal_probe_rejects_binary_floats_after_the_first_rows():
 def test_decimal_scale_needs_room_in_int64():
     assert _time.decimal_scale(np.array([0.5, 1e18])) is None  # 1e18 * 10 would pass 2**62
     assert _time.decimal_scale(np.array([1.0, 1e18])) == 1
+
+
+def test_integer_ids_whose_packed_key_does_not_fit_fall_back_to_codes():
+    """ids spread over 2**40 and times over 2**30 leave no room for the row number beside them:
+    the by-value path gives way to factorised codes, with the same order (numpy lexsort as reference)."""
+    df = pd.DataFrame({"id": np.array([2**40, 0, 2**40, 0], dtype=np.int64),
+                       "t": np.array([2**30, 5, 0, 2**30], dtype=np.int64)})
+    with _order.forced("by_value"):
+        p = Panel(df, id="id", time="t")
+    assert p.ordering.strategy == "packed"
+    codes = pd.factorize(df["id"])[0]
+    assert p.ordering.order.tolist() == np.lexsort((df["t"].to_numpy(), codes)).tolist()
+
+
+def test_unsigned_ids_beyond_int64():
+    big = np.uint64(2**63 + 5)
+    df = pd.DataFrame({"id": np.array([big, 3, big], dtype=np.uint64), "t": [1, 0, 0], "y": [1.0, 2.0, 3.0]})
+    out = pfx.derive(df, pfx.lag("y"), id="id", time="t")
+    assert out["y_lag1"].tolist()[0] == 3.0 and np.isnan(out["y_lag1"].tolist()[2])

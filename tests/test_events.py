@@ -51,11 +51,12 @@ def test_counts_and_ever_by_hand():
 
 
 def test_numeric_flags_datetimes_and_unsorted_rows():
-    # numbers: 0 is no event, any other number (here 2 and -1) an event, NaN no event
+    # numbers with any_nonzero: 0 is no event, any other number (here 2 and -1) an event, NaN no event
     df = pd.DataFrame({"pid": ["b", "a", "a", "a", "b"],
                        "t": pd.to_datetime(["2024-01-03", "2024-01-08", "2024-01-01", "2024-01-02", "2024-01-01"]),
                        "n": [0, 2, -1, np.nan, 0]}, index=[10, 11, 12, 13, 14])
-    out = run(df, pfx.time_since("n"), pfx.events_so_far("n"), pfx.time_since("n", "first"), unit="h")
+    out = run(df, pfx.time_since("n", any_nonzero=True), pfx.events_so_far("n", any_nonzero=True),
+              pfx.time_since("n", "first", any_nonzero=True), unit="h")
     np.testing.assert_array_equal(out["time_since_n"], [NAN, 0, 0, 24, NAN])
     np.testing.assert_array_equal(out["time_since_first_n"], [NAN, 7 * 24, 0, 24, NAN])
     assert out["n_count"].tolist() == [0, 2, 1, 1, 0]
@@ -86,9 +87,10 @@ def with_missing_flags(frame: pd.DataFrame) -> pd.DataFrame:
 def test_matches_reference(case, col_, which, current, kind):
     """Each event transform equals the per-subject loop reference, missing flags included."""
     frame = with_missing_flags(case.frame)
-    tr = {"since": pfx.time_since(col_, which, include_current=current),
-          "count": pfx.events_so_far(col_, include_current=current),
-          "ever": pfx.ever(col_, include_current=current)}[kind]
+    nz = col_ not in ("flag", "flag_na")  # numeric columns: opt in to "non-zero is an event"
+    tr = {"since": pfx.time_since(col_, which, include_current=current, any_nonzero=nz),
+          "count": pfx.events_so_far(col_, include_current=current, any_nonzero=nz),
+          "ever": pfx.ever(col_, include_current=current, any_nonzero=nz)}[kind]
     got = pfx.derive(frame, tr, **case.keys)
     want = reference(frame, tr, **case.keys)
     assert_matches_reference(got, want, list(tr.outputs()), rtol=1e-12)

@@ -67,7 +67,7 @@ def transforms(draw: st.DrawFn, i: int) -> Transform:
         except (pfx.PanelError, TypeError, ValueError):
             pass  # keep a configuration the transform accepts
     fields = {f.name for f in dataclasses.fields(tr)}
-    if "names" in fields:
+    if "names" in fields and (len(tr.outputs()) > 1 or "name" not in fields):
         tr = dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(tr.outputs()))))
     elif "name" in fields:
         tr = dataclasses.replace(tr, name=f"o{i}")
@@ -309,7 +309,7 @@ MALFORMED = [
     ("bad choice", _doc(_set(T1 + ["level"], "median")), "transforms[1].options.level",
      "level must be one of \\['mean', 'baseline'\\], got 'median'"),
     ("names of wrong length", _doc(_set(T1 + ["names"], ["a", "b", "c"])), "transforms[1].options.names",
-     "must be a list of 2"),
+     "names must be two different column names"),
     ("names not a list", _doc(_set(T1 + ["names"], "ab")), "transforms[1].options.names", "got a string"),
     ("bool for a number", _doc(_set(T2 + ["reference"], False)), "transforms[2].options.reference",
      "must be a string or a number or null, got true/false"),
@@ -320,7 +320,7 @@ MALFORMED = [
      "'sbp_lag1' of transform #3 \\(lag\\) is also made by transform #1"),
     ("uses a later column", _doc(_set(T0 + ["col"], "sbp_within")), "transforms[0]",
      "column 'sbp_within' needed by transform #1 \\(lag\\) is made by a later transform \\(#2, within_between\\)"),
-    ("uses the time column", _doc(_set(T0 + ["col"], "day")), "transforms[0]", "uses the id or time column 'day'"),
+    ("uses the id column", _doc(_set(T0 + ["col"], "pid")), "transforms[0]", "uses the id column 'pid'"),
 ]
 
 

@@ -7,7 +7,8 @@ do not depend on row order or on the other subjects).  Needs ``pip install 'pane
 
 - :func:`derive` / :func:`apply` (also ``Derivation.apply`` given a dask frame): the
   derived columns, lazily, as a dask DataFrame;
-- :func:`subject_summary`, :func:`check`: the frame-level functions per partition;
+- :func:`subject_summary`, :func:`check`, :func:`collapse_ties`, :func:`visit_grid`,
+  :func:`episodes`: the frame-level functions per partition;
 - :func:`map_subjects`: any function of a frame of whole subjects, per partition.
 
 Partitions: by default rows are shuffled by a stable hash of the (possibly composite) id
@@ -60,14 +61,15 @@ except ImportError as err:  # pragma: no cover - the extra is not installed
 import pandas as pd
 
 from .._panel import as_id_list
-from .._schema import predict_outputs
+from .._schema import predict_outputs, widen
 from .._transform import Transform
 from ..derivation import Derivation
 from ..errors import OptionError, SplitSubjectError
 from ._layout import HASH, ROW, arrange, restore_order
-from ._run import Call, check_part, derive_spec, engine_options, run_partition
+from ._run import Call, check_part, derive_spec, run_partition
 
-__all__ = ["derive", "apply", "map_subjects", "subject_summary", "check", "SplitSubjectError"]
+__all__ = ["derive", "apply", "map_subjects", "subject_summary", "check", "collapse_ties", "visit_grid", "episodes",
+           "SplitSubjectError"]
 
 
 def derive(
@@ -76,8 +78,9 @@ def derive(
     id: str | Sequence[str],
     time: str,
     unit: str | None = None,
+    order: str | None = None,
+    time_unit: str | None = None,
     tables: Mapping[str, Any] | None = None,
-    order: Any = None,
     whole_subjects: bool = False,
     if_split: Literal["raise", "shuffle"] = "raise",
     npartitions: int | None = None,
@@ -85,13 +88,14 @@ def derive(
 ) -> dd.DataFrame:
     """:func:`panelfx.derive` on a dask DataFrame, lazily: a dask DataFrame with the derived columns.
 
-    ``id``, ``time``, ``unit`` and the transforms are those of :func:`panelfx.derive`;
-    ``tables`` (side tables by name, pandas or dask frames with the id columns) and ``order``
-    are passed on to it.  ``whole_subjects``, ``if_split``, ``npartitions`` and
-    ``row_order`` say how the rows are partitioned and returned (see the module docstring).
-    Nothing is computed here: the output's names and dtypes are predicted, and errors in the
-    data (a missing time, duplicate occasions) are raised by ``compute()``, naming the
-    partition whose rows they count.
+    ``id``, ``time``, ``unit``, ``order``, ``time_unit`` and the transforms are those of
+    :func:`panelfx.derive`; ``tables`` (side tables by name, pandas or dask frames with the
+    id columns) are partitioned alongside the frame, so each partition meets only its own
+    subjects' records.  ``whole_subjects``, ``if_split``, ``npartitions`` and ``row_order``
+    say how the rows are partitioned and returned (see the module docstring).  Nothing is
+    computed here: the output's names and dtypes are predicted, and errors in the data (a
+    missing time, duplicate occasions) are raised by ``compute()``, naming the partition
+    whose rows they count.
 
     >>> import dask.dataframe as dd, pandas as pd, panelfx as pfx, panelfx.dask
     >>> df = pd.DataFrame({"pid": ["a", "a", "b", "b"], "day": [0, 30, 0, 28], "kg": [80.0, 78.5, 91.0, 90.0]},
@@ -107,8 +111,8 @@ def derive(
     12   b    0  91.0         91.0
     13   b   28  90.0         91.0
     """
-    spec = Derivation(*transforms, id=id, time=time, unit=unit)
-    return apply(spec, ddf, tables=tables, order=order, whole_subjects=whole_subjects, if_split=if_split,
+    spec = Derivation(*transforms, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
+    return apply(spec, ddf, tables=tables, whole_subjects=whole_subjects, if_split=if_split,
                  npartitions=npartitions, row_order=row_order)
 
 
@@ -117,7 +121,6 @@ def apply(
     ddf: dd.DataFrame,
     *,
     tables: Mapping[str, Any] | None = None,
-    order: Any = None,
     whole_subjects: bool = False,
     if_split: Literal["raise", "shuffle"] = "raise",
     npartitions: int | None = None,
@@ -131,28 +134,24 @@ def apply(
         raise OptionError(f"expected a panelfx.Derivation, got {type(derivation).__name__}")
     if row_order not in ("any", "input"):
         raise OptionError(f"row_order must be 'any' or 'input', got {row_order!r}")
-    options = engine_options(tables, order)
-    options.pop("tables", None)  # side tables go through the partitioning, not as one value
     if not isinstance(ddf, dd.DataFrame):
         raise TypeError(f"expected a dask DataFrame, got {type(ddf).__name__}")
-    id_cols = derivation.id_cols
+    if tables is not None and not isinstance(tables, Mapping):
+        raise OptionError(f"tables must be a mapping of names to data frames, got {type(tables).__name__}")
+    d = derivation
     # Predict the output schema first: bad options and missing columns fail before any work.
-    meta_in = ddf._meta
-    if tables or options:
-        table_metas = {k: (t._meta if isinstance(t, dd.DataFrame) else t.iloc[:0]) for k, t in (tables or {}).items()}
-        predicted = dict(derive_spec(meta_in, derivation.to_json(), table_metas, **options).dtypes.items())
-        predicted = {k: v for k, v in predicted.items() if k in derivation.outputs()}
-    else:
-        predicted = predict_outputs(meta_in, derivation.transforms, id_cols, derivation.time, derivation.unit)
-    layout = arrange(ddf, id_cols, whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions,
+    table_metas = {k: (t._meta if isinstance(t, dd.DataFrame) else t.iloc[:0]) for k, t in (tables or {}).items()}
+    predicted = predict_outputs(ddf._meta, d.transforms, d.id_cols, d.time, d.unit, order=d.order,
+                                time_unit=d.time_unit, tables=table_metas)
+    layout = arrange(ddf, d.id_cols, whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions,
                      rows=row_order == "input", tables=tables)
     keep_row = row_order == "input" and layout.shuffled
-    meta = meta_in.copy()
+    meta = ddf._meta.copy()
     for name, dtype in predicted.items():
         meta[name] = pd.Series(pd.array([], dtype=dtype), index=meta.index)
     if keep_row:
         meta[ROW] = pd.Series([], dtype="int64", index=meta.index)
-    out = _map(layout, derive_spec, (), {"spec": derivation.to_json(), **options}, meta, keep_row, "panelfx-derive")
+    out = _map(layout, derive_spec, (), {"spec": d.to_json()}, meta, keep_row, "panelfx-derive")
     return restore_order(out, ddf) if keep_row else out
 
 
@@ -187,6 +186,16 @@ def map_subjects(
     0    1    5
     1    2    9
     """
+    return _map_subjects(ddf, func, args, id=id, meta=meta, tables=tables, whole_subjects=whole_subjects,
+                         if_split=if_split, npartitions=npartitions, kwargs=kwargs, widen_meta=False)
+
+
+def _map_subjects(ddf: dd.DataFrame, func: Callable[..., pd.DataFrame], args: Sequence[Any], *,
+                  id: str | Sequence[str], meta: pd.DataFrame | None, tables: Mapping[str, Any] | None,
+                  whole_subjects: bool, if_split: str, npartitions: int | None, kwargs: Mapping[str, Any],
+                  widen_meta: bool) -> dd.DataFrame:
+    """:func:`map_subjects`; ``widen_meta`` makes a predicted meta's integer and boolean columns
+    nullable (for functions whose integer columns gain missing values in some partitions)."""
     id_value: Any = id if isinstance(id, str) else list(as_id_list(id))
     layout = arrange(ddf, as_id_list(id), whole_subjects=whole_subjects, if_split=if_split,
                      npartitions=npartitions, rows=False, tables=tables)
@@ -194,6 +203,8 @@ def map_subjects(
     if meta is None:
         extra = {"tables": {k: t._meta.drop(columns=[HASH]) for k, t in layout.tables.items()}} if tables else {}
         meta = func(ddf._meta, *args, **kwargs, **extra)
+        if widen_meta:
+            meta = widen(meta)
     name = getattr(func, "__name__", "func")
     return _map(layout, func, args, kwargs, meta, False, f"panelfx-{name}")
 
@@ -257,6 +268,84 @@ def check(
     """
     return map_subjects(ddf, check_part, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes,
                         whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions)
+
+
+def collapse_ties(
+    ddf: dd.DataFrame,
+    *,
+    id: str | Sequence[str],
+    time: str,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    **options: Any,
+) -> dd.DataFrame:
+    """:func:`panelfx.collapse_ties` on a dask DataFrame (``rules=``, ``order=`` as there), per partition.
+
+    The same rows and values as on the whole frame; ``source_rows`` lists the combined rows'
+    labels in the order the rows sit in their partition (after a shuffle, not the caller's)."""
+    from ..collapse import collapse_ties as one
+
+    return _map_subjects(ddf, one, (), id=id, meta=None, tables=None, whole_subjects=whole_subjects,
+                         if_split=if_split, npartitions=npartitions, kwargs={"time": time, **options},
+                         widen_meta=True)
+
+
+def visit_grid(
+    ddf: dd.DataFrame,
+    windows: Any,
+    *,
+    id: str | Sequence[str],
+    time: str,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    **options: Any,
+) -> dd.DataFrame:
+    """:func:`panelfx.visit_grid` on a dask DataFrame (``pick=``, ``day=``, ``until=`` as there), per partition."""
+    from ..visit_grid import visit_grid as one
+
+    return _map_subjects(ddf, one, (windows,), id=id, meta=None, tables=None, whole_subjects=whole_subjects,
+                         if_split=if_split, npartitions=npartitions, kwargs={"time": time, **options},
+                         widen_meta=True)
+
+
+#: Name under which an events table travels with the other side tables.
+_EVENTS = "__panelfx_events"
+
+
+def episodes(
+    ddf: dd.DataFrame,
+    *,
+    id: str | Sequence[str],
+    time: str,
+    events: Any = None,
+    tables: Mapping[str, Any] | None = None,
+    whole_subjects: bool = False,
+    if_split: Literal["raise", "shuffle"] = "raise",
+    npartitions: int | None = None,
+    **options: Any,
+) -> dd.DataFrame:
+    """:func:`panelfx.episodes` on a dask DataFrame, per partition.  ``events`` (a column name,
+    or a table of event times, pandas or dask) and ``tables`` are partitioned with the frame."""
+    tabs = dict(tables or {})
+    table_events = isinstance(events, (pd.DataFrame, dd.DataFrame))
+    if table_events:
+        tabs[_EVENTS] = events
+    kwargs = {"time": time, "events": None if table_events else events, "events_table": table_events, **options}
+    return _map_subjects(ddf, _episodes_part, (), id=id, meta=None, tables=tabs or None,
+                         whole_subjects=whole_subjects, if_split=if_split, npartitions=npartitions, kwargs=kwargs,
+                         widen_meta=True)
+
+
+def _episodes_part(frame: pd.DataFrame, *, events_table: bool, tables: Mapping[str, pd.DataFrame] | None = None,
+                   events: Any = None, **options: Any) -> pd.DataFrame:
+    from ..episodes import episodes as one
+
+    tabs = dict(tables or {})
+    if events_table:
+        events = tabs.pop(_EVENTS)
+    return one(frame, events=events, tables=tabs or None, **options)
 
 
 def _map(layout: Any, func: Callable[..., pd.DataFrame], args: Sequence[Any], kwargs: Mapping[str, Any],

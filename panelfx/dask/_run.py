@@ -8,7 +8,6 @@ process (:func:`parse` is cached), however many partitions the process works on.
 from __future__ import annotations
 
 import functools
-import inspect
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
@@ -17,10 +16,10 @@ import pandas as pd
 from .._schema import conform
 from ..derivation import Derivation
 from ..derive import derive as _derive
-from ..errors import OptionError, PanelError
+from ..errors import PanelError
 from ._layout import HASH, ROW, raise_if_split
 
-__all__ = ["parse", "derive_spec", "run_partition", "supports", "check_part", "Call"]
+__all__ = ["parse", "derive_spec", "run_partition", "check_part", "Call"]
 
 
 @functools.lru_cache(maxsize=32)
@@ -29,32 +28,11 @@ def parse(spec: str) -> Derivation:
     return Derivation.from_json(spec)
 
 
-def supports(option: str) -> bool:
-    """Whether this panelfx's ``derive`` takes ``option`` (``tables``, ``order``)."""
-    return option in inspect.signature(_derive).parameters
-
-
-def engine_options(tables: Mapping[str, Any] | None, order: Any) -> dict[str, Any]:
-    """The keyword arguments for ``panelfx.derive`` beyond id, time and unit; refused clearly
-    when this panelfx's ``derive`` does not take them yet."""
-    out: dict[str, Any] = {}
-    for option, value in (("tables", tables), ("order", order)):
-        if value is None:
-            continue
-        if not supports(option):
-            raise OptionError(f"{option}= is not supported by panelfx.derive in this version, so panelfx.dask "
-                              f"cannot pass it on")
-        out[option] = value
-    return out
-
-
-def derive_spec(frame: pd.DataFrame, spec: str, tables: Mapping[str, pd.DataFrame] | None = None,
-                **options: Any) -> pd.DataFrame:
+def derive_spec(frame: pd.DataFrame, spec: str, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
     """``panelfx.derive`` with the transforms and panel of the saved derivation ``spec``."""
     d = parse(spec)
-    if tables:
-        options["tables"] = dict(tables)
-    return _derive(frame, *d.transforms, id=d.id, time=d.time, unit=d.unit, **options)
+    return _derive(frame, *d.transforms, id=d.id, time=d.time, unit=d.unit, order=d.order, time_unit=d.time_unit,
+                   tables=dict(tables) if tables else None)
 
 
 def check_part(frame: pd.DataFrame, **options: Any) -> pd.DataFrame:

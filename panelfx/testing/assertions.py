@@ -12,7 +12,7 @@ All of them are vectorised (no loop over rows or subjects) except
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -20,6 +20,7 @@ import pandas as pd
 
 from .. import _kernels as K
 from .._panel import Panel, as_id_list
+from .._tables import SideTable
 from .._transform import Transform
 from ..check import check
 from ..derive import derive
@@ -98,8 +99,8 @@ def _fail(
     )
 
 
-def _panel(frame: pd.DataFrame, id: str | Sequence[str], time: str) -> Panel:
-    return Panel(frame, id=id, time=time)
+def _panel(frame: pd.DataFrame, id: str | Sequence[str], time: str, order: str | None = None) -> Panel:
+    return Panel(frame, id=id, time=time, order=order)
 
 
 # --------------------------------------------------------------------------- within subject
@@ -245,6 +246,9 @@ def assert_past_only(
     seed: int = 0,
     rtol: float = 1e-9,
     atol: float = 1e-12,
+    order: str | None = None,
+    time_unit: str | None = None,
+    tables: Mapping[str, pd.DataFrame] | None = None,
 ) -> None:
     """Assert that the transforms' outputs do not use the future.
 
@@ -264,6 +268,11 @@ def assert_past_only(
     Numbers are compared with ``rtol`` / ``atol`` (the running sums of a cut frame may
     round differently in the last digits), everything else exactly.
 
+    Side tables (``tables``, as for :func:`~panelfx.derive`) are cut at the same time as
+    each subject's rows: records whose time (every time column the transforms order the
+    table by) lies after the subject's cut-off time are removed, and end times beyond it
+    (a dosing record still running) are brought back to it.
+
     >>> import pandas as pd, panelfx as pfx
     >>> from panelfx.testing import assert_past_only
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2], "day": [0, 7, 14, 0], "y": [1.0, 3.0, 2.0, 5.0]})
@@ -280,9 +289,10 @@ def assert_past_only(
                 f"transform #{i + 1} ({tr.type_name}) declares that it uses later occasions "
                 f"(past_only is False): {tr!r}"
             )
-    full = derive(frame, *transforms, id=id, time=time, unit=unit)
+    keys: dict[str, Any] = {"id": id, "time": time, "unit": unit, "order": order, "time_unit": time_unit}
+    full = derive(frame, *transforms, **keys, tables=tables)
     outputs = [c for tr in transforms for c in tr.outputs()]
-    p = _panel(frame, id, time)
+    p = _panel(frame, id, time, order)
     pos = p.ordering.unsort(p.subjects.pos)
     if p.n == 0:
         return
@@ -297,7 +307,8 @@ def assert_past_only(
     for r in ranks:
         keep = pos <= r
         cut = frame.loc[keep] if frame.index.is_unique else frame.iloc[np.flatnonzero(keep)]
-        again = derive(cut, *transforms, id=id, time=time, unit=unit)
+        cut_tables = _cut_tables(tables, transforms, p, r) if tables else None
+        again = derive(cut, *transforms, **keys, tables=cut_tables)
         kept = full.iloc[np.flatnonzero(keep)]
         for col in outputs:
             ok = _same(again[col].reset_index(drop=True), kept[col].reset_index(drop=True), rtol, atol)
@@ -309,6 +320,35 @@ def assert_past_only(
                     {"with all rows": kept[col].to_numpy(dtype=object),
                      f"cut after rank {r}": again[col].to_numpy(dtype=object)},
                 )
+
+
+def _cut_tables(tables: Mapping[str, pd.DataFrame], transforms: Sequence[Transform], p: Panel,
+                r: int) -> dict[str, pd.DataFrame]:
+    """Each side table cut at each subject's time of occasion rank ``r`` (subjects with fewer
+    occasions keep every record): later records removed, later ends brought back to it."""
+    frame = p.frame
+    long_enough = p.subjects.lengths > r + 1
+    at = np.where(long_enough, p.original_positions(np.minimum(p.subjects.starts + r, p.n - 1)), -1)
+    cut_of_subject = pd.api.extensions.take(frame[p.time_col].array, at, allow_fill=True)
+    out: dict[str, pd.DataFrame] = {}
+    for name, table in tables.items():
+        uses = [u for tr in transforms for u in tr.tables() if u.name == name]
+        if not uses:
+            out[name] = table
+            continue
+        psub = SideTable(name, table, p).psub
+        cut = pd.Series(pd.api.extensions.take(cut_of_subject, psub, allow_fill=True), index=table.index)
+        drop = np.zeros(len(table), dtype=bool)
+        for col in dict.fromkeys(u.time for u in uses):
+            drop |= (table[col] > cut).fillna(False).to_numpy(dtype=bool)
+        kept = table.iloc[np.flatnonzero(~drop)].copy()
+        cut = cut.iloc[np.flatnonzero(~drop)]
+        for col in dict.fromkeys(e for u in uses for e in u.ends):
+            late = (kept[col] > cut).fillna(False).to_numpy(dtype=bool)
+            if late.any():
+                kept[col] = kept[col].where(~late, cut)
+        out[name] = kept
+    return out
 
 
 # --------------------------------------------------------------------------- re-derivation
@@ -404,7 +444,9 @@ def assert_panel_structure(
 ) -> None:
     """Assert that ``frame`` is a well-formed long panel: no missing id or time and no
     duplicate (id, time); with ``spacing`` also that every visit is on schedule (no
-    early, late, missed or extra visit, as :func:`panelfx.check` defines them).
+    early, late, missed or extra visit, as :func:`panelfx.check` defines them).  Like
+    every warning of :func:`panelfx.check`, ``interval_data`` (the frame looks like
+    (start, stop] data declared with its start column as time) fails it too.
 
     A missing id/time column or a time column of text raise their usual
     :class:`~panelfx.PanelError`, as in :func:`panelfx.check`.

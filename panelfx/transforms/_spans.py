@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._time import span_ns
 from ..errors import OptionError
 
 
@@ -41,8 +42,8 @@ def check_span(name: str, value: Any, *, allow_zero: bool = False) -> str | int 
         if not any(c.isalpha() for c in value):
             raise OptionError(f"{name}={value!r} has no unit: write e.g. '{value.strip()}D' for days")
         try:
-            ns = pd.Timedelta(value).value
-        except ValueError:
+            ns = span_ns(value)  # also spans longer than pandas' Timedelta holds (about 292 years)
+        except (ValueError, OverflowError):
             raise OptionError(f"{name}={value!r} is not a time span such as '30D'") from None
         if ns < 0 or (ns == 0 and not allow_zero):
             raise OptionError(f"{hint}, got {value!r}")

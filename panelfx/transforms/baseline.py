@@ -9,7 +9,7 @@ from typing import Any
 from .._columns import Take
 from .._panel import Panel
 from .._transform import Transform, check_column_name, check_name
-from ._common import baseline_index, check_rule, reference_columns, rule_words
+from ._common import baseline_index, check_rule, check_where, reference_columns, rule_words, where_words, with_where
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -20,15 +20,17 @@ class Baseline(Transform):
     col: str
     rule: str = "first_valid"
     reference: str | float | None = None
+    where: str | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
         check_name(self.name)
         check_rule(self.rule, self.reference)
+        check_where(self.where)
 
     def inputs(self) -> tuple[str, ...]:
-        return (self.col, *reference_columns(self.reference))
+        return with_where((self.col, *reference_columns(self.reference)), self.where)
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or f"{self.col}_baseline",)
@@ -39,10 +41,11 @@ class Baseline(Transform):
         return False
 
     def describe(self) -> str:
-        return f"baseline of {self.col!r}: {rule_words(self.rule, self.reference)}, carried to every row of the subject"
+        return (f"baseline of {self.col!r}: {rule_words(self.rule, self.reference)}, carried to every row of the "
+                f"subject{where_words(self.where)}")
 
     def compute(self, panel: Panel) -> Sequence[Any]:
-        return [Take(self.col, baseline_index(panel, self.col, self.rule, self.reference))]
+        return [Take(self.col, baseline_index(panel, self.col, self.rule, self.reference, self.where))]
 
 
 def baseline(
@@ -50,6 +53,7 @@ def baseline(
     rule: str = "first_valid",
     *,
     reference: str | float | None = None,
+    where: str | None = None,
     name: str | None = None,
 ) -> Baseline:
     """The subject's baseline value of ``col``, carried to every row of the subject.
@@ -63,6 +67,9 @@ def baseline(
       the start of treatment; or a number for numeric times).  This is the usual
       convention of clinical-trial analysis datasets; CDISC ADaM leaves the exact rule to
       the analysis plan.
+
+    ``where`` (a true/false column): only occasions where it is true may hold the baseline
+    (the baseline among pre-dose rows, say); every row still receives it.
 
     Missing values: a subject with no qualifying value gets a missing baseline on every
     row.  The output keeps the column's dtype (integers become float64 only when a
@@ -80,4 +87,4 @@ def baseline(
     3    2    0  162.0         162.0
     4    2   30  158.0         162.0
     """
-    return Baseline(col=col, rule=rule, reference=reference, name=name)
+    return Baseline(col=col, rule=rule, reference=reference, where=where, name=name)

@@ -51,6 +51,9 @@ class ChangeFromBaseline(Transform):
         rows = "; missing up to and including the baseline occasion" if self.after_baseline_only else ""
         return f"{what} of {self.col!r}; baseline = {rule_words(self.rule, self.reference)}{rows}"
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("duration",) if self.col == time and self.kind == "difference" else (None,)
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         base_row = baseline_index(panel, self.col, self.rule, self.reference)
         if self.kind == "difference":

@@ -49,6 +49,11 @@ class ChangeFromPrevious(Transform):
         prev = "the last earlier occasion with a value" if self.skip_missing else "the previous occasion"
         return f"{what} of {self.col!r}; previous = {prev}"
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        if self.kind == "rate":
+            return ("rate",)
+        return ("duration",) if self.col == time and self.kind == "difference" else (None,)
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         if self.skip_missing:
@@ -60,8 +65,10 @@ class ChangeFromPrevious(Transform):
         y = panel.columns.numeric(self.col)
         y_prev = K.take(y, prev)
         if self.kind == "rate":
+            elapsed = panel.elapsed_since(prev)
+            elapsed[elapsed == 0] = np.nan  # tied occasions: no time passed, no rate
             with np.errstate(divide="ignore", invalid="ignore"):
-                return [(y - y_prev) / panel.elapsed_since(prev)]
+                return [(y - y_prev) / elapsed]
         return [relative_change(y, y_prev, self.kind)]
 
 

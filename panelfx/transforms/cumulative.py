@@ -11,6 +11,7 @@ import numpy as np
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name, check_name
+from ._common import check_where, sources, where_words, with_where
 from ._spans import check_span, span_words
 
 METHODS = {"sum": "cum", "step": "cum_step", "trapezoid": "auc"}
@@ -26,6 +27,7 @@ class Cumulative(Transform):
     method: str = "sum"
     restart_after: str | float | None = None
     missing: str = "skip"
+    where: str | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
@@ -33,11 +35,12 @@ class Cumulative(Transform):
         check_name(self.name)
         check_choice("method", self.method, list(METHODS))
         check_choice("missing", self.missing, MISSING)
+        check_where(self.where)
         if self.restart_after is not None:
             object.__setattr__(self, "restart_after", check_span("restart_after", self.restart_after))
 
     def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
+        return with_where((self.col,), self.where)
 
     def outputs(self) -> tuple[str, ...]:
         return (self.name or f"{self.col}_{METHODS[self.method]}",)
@@ -59,11 +62,17 @@ class Cumulative(Transform):
             what += "; a missing value contributes nothing"
         else:
             what += "; missing from the first missing contribution until the accumulation restarts"
-        return what
+        return what + where_words(self.where)
+
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("area",) if self.method in ("step", "trapezoid") else (None,)
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
         y = panel.columns.numeric(self.col)
+        allowed = sources(panel, self.where)
+        if allowed is not None:  # rows that may not serve as sources add nothing (not "missing")
+            y = np.where(allowed, y, 0.0)
         if self.method == "sum" and self.restart_after is None:
             # A plain running total needs no intervals (same values as the general path).
             bad = np.isnan(y)
@@ -71,10 +80,12 @@ class Cumulative(Transform):
             if self.missing == "propagate":
                 out[K.last_index_upto(s, bad) >= 0] = np.nan
             return [out]
-        prev = K.shift_index(s, 1)
+        if allowed is None:
+            prev = K.shift_index(s, 1)
+        else:  # intervals join consecutive source rows; the other rows start none
+            prev = np.where(allowed, K.at_previous(s, K.last_index_upto(s, allowed)), -1)
         has_prev = prev >= 0
         pi = np.maximum(prev, 0)
-        step = panel.t - panel.t[pi]  # native units; 0 on each subject's first row
         breaks = np.zeros(panel.n, dtype=bool)
         runs = s  # without restarts the runs are the subjects
         if self.restart_after is not None:
@@ -84,7 +95,7 @@ class Cumulative(Transform):
             runs = s.split(breaks)
         linked = has_prev & ~breaks  # the interval from the previous occasion counts
         miss = np.isnan(y)
-        dt = panel.duration(step)
+        dt = panel.axis.elapsed(panel.t, panel.t[pi])  # 0 on each subject's first row
         if self.method == "sum":
             bad = miss
             part = np.where(bad, 0.0, y)
@@ -106,6 +117,7 @@ def cumulative(
     *,
     restart_after: str | float | None = None,
     missing: str = "skip",
+    where: str | None = None,
     name: str | None = None,
 ) -> Cumulative:
     """Cumulative exposure to ``col`` up to each occasion, within the subject.
@@ -129,6 +141,11 @@ def cumulative(
     than it: the occasion after the gap starts again as if it were the subject's first
     (sum = its own value, integrals = 0), and the interval across the gap adds nothing.
 
+    ``where`` (a true/false column): only occasions where it is true are sources: a sum
+    adds their values, and the integrals run along the curve through them alone (an
+    interval joins two consecutive such occasions, whatever lies between); the other rows
+    add nothing and still receive the running total.
+
     Missing values (``missing=``): ``"skip"`` (default) - a missing value contributes
     nothing: it adds 0 to a sum, and every interval it bounds (the one after it for
     ``"step"``, both neighbours for ``"trapezoid"``) adds 0; the running total is still
@@ -150,4 +167,4 @@ def cumulative(
     3    1    6  1.0    11.0         22.0    18.5
     4    2    0  5.0     5.0          0.0     0.0
     """
-    return Cumulative(col=col, method=method, restart_after=restart_after, missing=missing, name=name)
+    return Cumulative(col=col, method=method, restart_after=restart_after, missing=missing, where=where, name=name)

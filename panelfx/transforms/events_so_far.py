@@ -7,7 +7,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .._panel import Panel
-from ._common import FlagHistory
+from ._common import FlagHistory, flag_words
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -21,13 +21,14 @@ class EventsSoFar(FlagHistory):
 
     def describe(self) -> str:
         return (f"number of the subject's occasions {self._when()} the current one at which {self.col!r} is true "
-                f"(a missing flag is not an event)")
+                f"(a missing flag is not an event)" + flag_words(self.any_nonzero, self.where))
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         return [self.counts(panel)]
 
 
-def events_so_far(col: str, *, include_current: bool = True, name: str | None = None) -> EventsSoFar:
+def events_so_far(col: str, *, include_current: bool = True, any_nonzero: bool = False, where: str | None = None,
+                  name: str | None = None) -> EventsSoFar:
     """How many of the subject's occasions up to the current one have ``col`` true.
 
     ``col`` is a true/false column (booleans, or numbers where 0 is false and any other
@@ -47,4 +48,4 @@ def events_so_far(col: str, *, include_current: bool = True, name: str | None = 
     3    1   4       1.0               2      1
     4    2   1       0.0               0      0
     """
-    return EventsSoFar(col=col, include_current=include_current, name=name)
+    return EventsSoFar(col=col, include_current=include_current, any_nonzero=any_nonzero, where=where, name=name)

@@ -7,7 +7,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .._panel import Panel
-from ._common import FlagHistory
+from ._common import FlagHistory, flag_words
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -21,13 +21,14 @@ class Ever(FlagHistory):
 
     def describe(self) -> str:
         return (f"True once {self.col!r} has been true at an occasion {self._when()} the current one, else False "
-                f"(a missing flag is not an event)")
+                f"(a missing flag is not an event)" + flag_words(self.any_nonzero, self.where))
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         return [self.counts(panel) > 0]
 
 
-def ever(col: str, *, include_current: bool = True, name: str | None = None) -> Ever:
+def ever(col: str, *, include_current: bool = True, any_nonzero: bool = False, where: str | None = None,
+         name: str | None = None) -> Ever:
     """Ever/never flag: True from the subject's first occasion with ``col`` true onwards.
 
     ``col`` is a true/false column (booleans, or numbers where 0 is false and any other
@@ -47,4 +48,4 @@ def ever(col: str, *, include_current: bool = True, name: str | None = None) -> 
     3    2   1   False        False
     4    2   2   False        False
     """
-    return Ever(col=col, include_current=include_current, name=name)
+    return Ever(col=col, include_current=include_current, any_nonzero=any_nonzero, where=where, name=name)

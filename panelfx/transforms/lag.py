@@ -11,8 +11,9 @@ import numpy as np
 from .. import _kernels as K
 from .._columns import Take
 from .._panel import Panel
-from .._transform import Transform, check_column_name, check_int, check_name
+from .._transform import Transform, check_bool, check_column_name, check_int, check_name
 from ..errors import OptionError
+from ._common import check_where, nth_source, sources
 from ._spans import check_span, span_label, span_words
 
 
@@ -25,11 +26,15 @@ class Lag(Transform):
     periods: int | None = None  # None: 1 occasion unless offset= is given
     offset: str | float | None = None
     tolerance: str | float | None = None
+    skip_missing: bool = False
+    where: str | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
         check_name(self.name)
+        check_bool("skip_missing", self.skip_missing)
+        check_where(self.where)
         if self.offset is None:
             if self.tolerance is not None:
                 raise OptionError("tolerance= applies only to a lag by time (offset=), not to periods=")
@@ -39,12 +44,12 @@ class Lag(Transform):
             return
         if self.periods is not None:
             raise OptionError("give either periods= (occasions) or offset= (time), not both")
-        object.__setattr__(self, "offset", check_span("offset", self.offset))
+        object.__setattr__(self, "offset", check_span("offset", self.offset, allow_zero=True))
         if self.tolerance is not None:
             object.__setattr__(self, "tolerance", check_span("tolerance", self.tolerance, allow_zero=True))
 
     def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
+        return (self.col,) if self.where is None else (self.col, self.where)
 
     @property
     def _steps(self) -> int:
@@ -69,24 +74,37 @@ class Lag(Transform):
                      f"{span_words(self.offset)} earlier")
             if self.tolerance is not None:
                 words += f", if that occasion is at most {span_words(self.tolerance)} older than the target time"
-            return words
+            return words + self._source_words()
         if self._steps > 0:
-            return f"value of {self.col!r} {self._steps} occasion(s) earlier in the subject"
-        return f"value of {self.col!r} {-self._steps} occasion(s) later in the subject (uses the future)"
+            return f"value of {self.col!r} {self._steps} occasion(s) earlier in the subject" + self._source_words()
+        return (f"value of {self.col!r} {-self._steps} occasion(s) later in the subject (uses the future)"
+                + self._source_words())
+
+    def _source_words(self) -> str:
+        words = "; occasions where it is missing are skipped" if self.skip_missing else ""
+        if self.where is not None:
+            words += f"; only occasions where {self.where!r} is true count"
+        return words
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
+        mask = sources(panel, self.where, self.col if self.skip_missing else None)
         if self.offset is None:
-            return [Take(self.col, K.shift_index(s, self._steps))]
+            if mask is None:
+                return [Take(self.col, K.shift_index(s, self._steps))]
+            return [Take(self.col, nth_source(s, mask, self._steps))]
         offset = panel.span(self.offset, "offset")
-        # last occasion at or before t - offset: one before the first one after it
-        src = panel.first_at_or_after(panel.axis.back(offset, strict=True)) - 1
-        ok = src >= s.first
+        # last occasion at or before t - offset: one before the first one after it; never a
+        # row after the current one (a tied row later in the order, when offset is 0)
+        src = np.minimum(panel.first_at_or_after(panel.axis.back(offset, strict=True)) - 1, np.arange(panel.n))
+        src = np.where(src >= s.first, src, -1)
+        if mask is not None:  # the latest qualifying source at or before that occasion
+            src = np.where(src >= 0, K.last_index_upto(s, mask)[np.maximum(src, 0)], -1)
         if self.tolerance is not None:
-            # the source must lie at or after t - offset - tolerance (spans add exactly)
+            # the source's own time must lie at or after t - offset - tolerance (spans add exactly)
             oldest = panel.axis.back(offset + panel.span(self.tolerance, "tolerance"), strict=False)
-            ok &= panel.axis.key[np.maximum(src, 0)] >= oldest
-        return [Take(self.col, np.where(ok, src, -1))]
+            src = np.where(panel.axis.key[np.maximum(src, 0)] >= oldest, src, -1)
+        return [Take(self.col, src)]
 
 
 def lag(
@@ -95,6 +113,8 @@ def lag(
     *,
     offset: str | float | None = None,
     tolerance: str | float | None = None,
+    skip_missing: bool = False,
+    where: str | None = None,
     name: str | None = None,
 ) -> Lag:
     """The value of ``col`` ``periods`` occasions earlier, or ``offset`` time earlier, within the subject.
@@ -103,17 +123,24 @@ def lag(
     of the subject in time order, however far apart in time.  Negative ``periods`` look
     ahead (a lead); that uses the future and is not past-only.
 
-    By time (``offset``, a positive number for numeric times or a span such as ``"30D"``
+    By time (``offset``, a non-negative number for numeric times or a span such as ``"30D"``
     for datetimes; exclusive with ``periods``): the value at the subject's latest
-    occasion at or before t - offset, the value "as of" that time.  ``tolerance`` (same
-    kind of span, may be 0) drops sources that are too old: the source occasion must lie
-    at or after t - offset - tolerance.  Without it any earlier occasion qualifies.
+    occasion at or before t - offset, the value "as of" that time (``offset=0``: as of
+    now, the current occasion included).  ``tolerance`` (same kind of span, may be 0)
+    drops sources that are too old: the source occasion's own time must lie at or after
+    t - offset - tolerance.  Without it any earlier occasion qualifies.
+
+    Sources: ``skip_missing=True`` skips occasions where ``col`` is missing (the value at
+    the most recent earlier occasion where it is present: the k-th such one for
+    ``periods=k``); ``where`` (a true/false column) lets only occasions where it is true
+    serve as sources.  Every row still receives a value.  With ``tolerance`` the age is
+    measured from the source actually used, after skipping.
 
     Missing values: missing where the source occasion does not exist (the subject's first
-    ``periods`` rows) and where the source value itself is missing.  Works on any dtype
-    (numbers, text, categories) and keeps it; integers become float64 only where a value
-    is missing.  By time: missing where no occasion qualifies and where the qualifying
-    occasion's value is missing (earlier values are not searched).  Past-only for positive
+    ``periods`` rows) and, without ``skip_missing``, where the source value itself is
+    missing.  Works on any dtype (numbers, text, categories, datetimes, the time column
+    itself) and keeps it; integers become float64 only where a value is missing (nullable
+    Int64 when some exceed 2**53, which float64 would round).  Past-only for positive
     ``periods`` and for ``offset``.  Default name: ``<col>_lag<k>`` or ``<col>_lead<k>``;
     ``<col>_lag_<offset>`` by time (``hb_lag_30D``, ``hb_lag_7``).
 
@@ -139,4 +166,5 @@ def lag(
     3   a   16    40        30.0     30.0
     4   a   30    50        40.0      NaN
     """
-    return Lag(col=col, periods=periods, offset=offset, tolerance=tolerance, name=name)
+    return Lag(col=col, periods=periods, offset=offset, tolerance=tolerance, skip_missing=skip_missing,
+               where=where, name=name)

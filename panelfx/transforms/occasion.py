@@ -22,6 +22,9 @@ class Occasion(OccasionHelper):
     def describe(self) -> str:
         return "occasion number within the subject in time order (1 = first occasion)"
 
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return (None,)  # a count of occasions
+
     def compute(self, panel: Panel) -> Sequence[Any]:
         return [panel.subjects.pos + 1]
 

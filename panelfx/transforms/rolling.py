@@ -14,6 +14,7 @@ from .._panel import Panel
 from .._subjects import Subjects
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_int, check_name
 from ..errors import OptionError
+from ._common import check_where, sources, where_words, with_where
 from ._spans import check_span, span_label
 
 STATS = ("mean", "sum", "count", "min", "max", "std", "var", "median")
@@ -35,6 +36,7 @@ class Rolling(Transform):
     closed: str = "right"
     min_valid: int = 1
     exclude_current: bool = False
+    where: str | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
@@ -60,10 +62,11 @@ class Rolling(Transform):
                 f"min_valid={self.min_valid} is more than occasions={self.occasions}: every value would be missing"
             )
         check_bool("exclude_current", self.exclude_current)
+        check_where(self.where)
 
     # ------------------------------------------------------------------ protocol
     def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
+        return with_where((self.col,), self.where)
 
     def outputs(self) -> tuple[str, ...]:
         if self.name:
@@ -86,7 +89,8 @@ class Rolling(Transform):
         least = max(self.min_valid, 2 if self.stat in ("std", "var") else 1)
         return (f"{_WORDS[self.stat]} of {self.col!r} over {self._window_words()}; non-missing values only, "
                 + ("never missing" if self.stat == "count" else
-                   f"missing when the window has fewer than {least} non-missing value(s)"))
+                   f"missing when the window has fewer than {least} non-missing value(s)")
+                + where_words(self.where))
 
     def _window_words(self) -> str:
         now = not self.exclude_current
@@ -103,6 +107,9 @@ class Rolling(Transform):
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         y = panel.columns.numeric(self.col)
+        allowed = sources(panel, self.where)
+        if allowed is not None:  # values of rows that may not serve as sources are left out
+            y = np.where(allowed, y, np.nan)
         span = None if self.span is None else panel.span(self.span, "span")
         b = W.bounds(panel, occasions=self.occasions, span=span, closed=self.closed,
                      exclude_current=self.exclude_current)
@@ -112,6 +119,7 @@ class Rolling(Transform):
             return [cnt]
         out = self._statistic(panel.subjects, b, y, valid, cnt)
         out[cnt < self.min_valid] = np.nan
+        out += 0.0  # one zero: min/max of {0.0, -0.0} would otherwise depend on their order
         return [out]
 
     def _statistic(self, s: Subjects, b: W.Bounds, y: np.ndarray, valid: np.ndarray,
@@ -154,6 +162,7 @@ def rolling(
     closed: str = "right",
     min_valid: int = 1,
     exclude_current: bool = False,
+    where: str | None = None,
     name: str | None = None,
 ) -> Rolling:
     """A statistic of ``col`` over a window that ends at each occasion of the subject.
@@ -173,6 +182,10 @@ def rolling(
 
     Statistics: ``"mean"``, ``"sum"``, ``"count"``, ``"min"``, ``"max"``, ``"median"``,
     ``"std"`` and ``"var"`` (sample standard deviation and variance, divisor n - 1).
+
+    ``where`` (a true/false column): only occasions where it is true contribute values
+    (the worst value so far after baseline, say); the window itself is unchanged and every
+    row still receives a value.
 
     Missing values: a window is made of occasions, whether or not their value is
     missing, and each statistic uses the window's non-missing values.  ``count`` is their
@@ -205,4 +218,4 @@ def rolling(
     """
     # a timedelta span becomes text such as "90D" in __post_init__, so the stored option stays plain
     return Rolling(col=col, stat=stat, occasions=occasions, span=span,  # type: ignore[arg-type]
-                   closed=closed, min_valid=min_valid, exclude_current=exclude_current, name=name)
+                   closed=closed, min_valid=min_valid, exclude_current=exclude_current, where=where, name=name)

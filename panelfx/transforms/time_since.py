@@ -11,6 +11,7 @@ import numpy as np
 from .. import _kernels as K
 from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
+from ._common import check_where, event_flags, flag_words, with_where
 
 WHICH = ("last", "first")
 
@@ -23,6 +24,8 @@ class TimeSince(Transform):
     col: str
     which: str = "last"
     include_current: bool = True
+    any_nonzero: bool = False
+    where: str | None = None
     name: str | None = None
 
     def __post_init__(self) -> None:
@@ -30,9 +33,11 @@ class TimeSince(Transform):
         check_name(self.name)
         check_choice("which", self.which, WHICH)
         check_bool("include_current", self.include_current)
+        check_bool("any_nonzero", self.any_nonzero)
+        check_where(self.where)
 
     def inputs(self) -> tuple[str, ...]:
-        return (self.col,)
+        return with_where((self.col,), self.where)
 
     def outputs(self) -> tuple[str, ...]:
         if self.name:
@@ -47,11 +52,15 @@ class TimeSince(Transform):
         which = "most recent" if self.which == "last" else "first"
         when = "at or before the current occasion" if self.include_current else "strictly before the current occasion"
         return (f"time since the {which} occasion at which {self.col!r} is true, {when}; "
-                f"missing before any such event (a missing flag is not an event)")
+                f"missing before any such event (a missing flag is not an event)"
+                + flag_words(self.any_nonzero, self.where))
+
+    def unit_kinds(self, time: str) -> tuple[str | None, ...]:
+        return ("duration",)
 
     def compute(self, panel: Panel) -> Sequence[Any]:
         s = panel.subjects
-        event, _ = panel.columns.flags(self.col)  # a missing flag counts as no event
+        event = event_flags(panel, self.col, self.any_nonzero, self.where)  # a missing flag is no event
         rows = np.arange(panel.n)
         if self.which == "last":
             src = K.last_index_upto(s, event)
@@ -69,6 +78,8 @@ def time_since(
     which: str = "last",
     *,
     include_current: bool = True,
+    any_nonzero: bool = False,
+    where: str | None = None,
     name: str | None = None,
 ) -> TimeSince:
     """Time since the subject's most recent (``which="last"``) or first (``"first"``)
@@ -80,6 +91,10 @@ def time_since(
     previous event" feature).  Durations are float64 in the time column's units, or in
     the ``unit`` of :func:`~panelfx.derive` (default days) for datetimes; 0 on an event
     occasion when the current one counts.
+
+    Event flags are booleans or 0/1 numbers; other numbers (a lab value, an event number)
+    are an error unless ``any_nonzero=True`` says every non-zero number is an event.
+    ``where`` (a true/false column): only events at occasions where it is true count.
 
     Missing values: a missing flag is not an event; the result is missing before the
     subject's first (counted) event.  Past-only.  Default names: ``time_since_<col>``,
@@ -97,4 +112,5 @@ def time_since(
     3    1   12   True              0.0                    9.0          9.0
     4    2    0   True              0.0                    0.0          NaN
     """
-    return TimeSince(col=col, which=which, include_current=include_current, name=name)
+    return TimeSince(col=col, which=which, include_current=include_current, any_nonzero=any_nonzero, where=where,
+                     name=name)

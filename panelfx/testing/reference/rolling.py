@@ -12,6 +12,7 @@ import statistics
 from typing import Any
 
 from . import Subject, register
+from .history import allowed
 
 
 def _members(tr: Any, s: Subject, i: int, span: float | None) -> list[int]:
@@ -59,7 +60,8 @@ def _statistic(stat: str, vals: list[float]) -> float:
 
 @register("rolling")
 def rolling(tr: Any, s: Subject) -> list[list[Any]]:
-    y = s.values(tr.col)
+    ok = allowed(tr, s)
+    y = [v if ok[j] else math.nan for j, v in enumerate(s.values(tr.col))]  # where=: others left out
     span = None if tr.span is None else s.span(tr.span)
     out: list[Any] = []
     for i in range(len(y)):
