@@ -4,7 +4,9 @@
   report of :func:`panelfx.check`.
 - ``apply DERIVATION INPUT -o OUTPUT [--table NAME=PATH ...]``: apply a saved
   :class:`~panelfx.Derivation` to a CSV or Parquet file (with the side tables it reads)
-  and write Parquet or CSV.
+  and write Parquet or CSV.  On Parquet bigger than memory (a folder, or ``--memory`` /
+  ``--partitions`` / ``--workers`` / ``--row-number``) it works subject by subject through
+  hash partitions on disk and writes a folder of parts (:mod:`panelfx._bigfile`).
 - ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
 
 Files are read and written through pyarrow; the format follows the extension (``.csv``,
@@ -456,10 +458,26 @@ def _apply(argv: list[str]) -> int:
     parser.add_argument("--output-format", choices=["csv", "parquet"])
     _table_option(parser)
     _input_options(parser, quiet="no progress or summary on stderr")
+    big = parser.add_argument_group(
+        "data bigger than memory", "A Parquet folder as input, or any of these options, works subject by subject "
+        "through hash partitions on disk and writes OUTPUT as a folder of Parquet parts (renamed into place when "
+        "complete). Same values as the in-memory path; rows come partition by partition.")
+    big.add_argument("--memory", metavar="SIZE", help="memory budget, e.g. 4GB (default: half of this machine's)")
+    big.add_argument("--partitions", type=int, metavar="N", help="number of partitions (default: from --memory)")
+    big.add_argument("--workers", type=int, default=1, metavar="N",
+                     help="partitions worked on at once, by Dask's local scheduler (needs panelfx[dask])")
+    big.add_argument("--row-number", metavar="COL", help="add each row's 0-based number in the input as COL")
     args = parser.parse_args(argv)
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
     derivation = Derivation.load(args.derivation)
+    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
+                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
+                                       for spec in args.table}})
+    if args.input != STDIO and (os.path.isdir(args.input)
+                                or any(v is not None for v in (args.memory, args.partitions, args.row_number))
+                                or args.workers != 1):
+        return _apply_partitioned(derivation, args, progress)
     file_format(args.input, args.input_format or ("csv" if args.input == STDIO else None), "input")
     file_format(args.output, args.output_format or ("csv" if args.output == STDIO else None), "output")
     if args.output == STDIO and args.output_format == "parquet":
@@ -467,9 +485,6 @@ def _apply(argv: list[str]) -> int:
     folder = os.path.dirname(os.path.abspath(args.output))
     if args.output != STDIO and not os.path.isdir(folder):
         raise FileNotFoundError(f"output folder {folder!r} does not exist")
-    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
-                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
-                                       for spec in args.table}})
     if args.input != STDIO and file_format(args.input, args.input_format, "input") == "parquet" \
             and os.path.exists(args.input):
         import pyarrow.parquet as pq
@@ -502,6 +517,31 @@ def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
         if same:
             raise UsageError(f"-o {output} is the {what} file {path}: refusing to overwrite it; "
                              "write the result to another file")
+
+
+def _apply_partitioned(derivation: Derivation, args: argparse.Namespace, progress: Progress) -> int:
+    from ._bigfile import apply_partitioned, parse_size
+
+    if args.table or derivation.tables():
+        raise UsageError("side tables (--table) are not supported by the partitioned apply yet; for data bigger "
+                         "than memory with side tables use panelfx.dask.derive(..., tables=)")
+    if not os.path.isdir(args.input) and file_format(args.input, args.input_format, "input") != "parquet":
+        raise UsageError("data bigger than memory is read from Parquet (a file or a folder): convert the CSV first")
+    if args.output_format == "csv":
+        raise UsageError("a partitioned apply writes a folder of Parquet parts; --output-format csv is not possible")
+    if args.partitions is not None and args.partitions < 1:
+        raise UsageError(f"--partitions must be at least 1, got {args.partitions}")
+    memory = parse_size(args.memory) if args.memory is not None else _half_of_memory()
+    apply_partitioned(derivation, args.input, args.output, memory=memory, partitions=args.partitions,
+                      workers=args.workers, row_number=args.row_number, progress=progress)
+    return 0
+
+
+def _half_of_memory() -> int:
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")) // 2
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - not a POSIX system
+        return 4 * 2**30
 
 
 def _dictionary(argv: list[str]) -> int:

@@ -183,10 +183,22 @@ class Derivation:
                           description=self.description, order=self.order, time_unit=self.time_unit)
 
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
-              threads: int | None = None) -> pd.DataFrame:
+              threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
         derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
-        already on the input is kept under ``"previous"``."""
+        already on the input is kept under ``"previous"``.
+
+        Given a dask DataFrame, the result is a dask DataFrame, lazily (see
+        :func:`panelfx.dask.apply`, which takes ``dask_options``)."""
+        if type(frame).__module__.startswith("dask."):  # no import of dask unless it is in use
+            from .dask import apply as apply_dask
+
+            if threads is not None:
+                raise OptionError("threads= does not apply to dask DataFrames: Dask's workers set the parallelism")
+            return apply_dask(self, frame, tables=tables, **dask_options)
+        if dask_options:
+            raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
+                              f"{type(frame).__name__}")
         out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
                      time_unit=self.time_unit, tables=tables, threads=threads)
         record: dict[str, Any] = {

@@ -24,6 +24,7 @@ __all__ = [
     "ConflictingTiesError",
     "NotConstantError",
     "OptionError",
+    "SplitSubjectError",
     "NestingError",
     "MissingTableError",
     "TiedRecordsError",
@@ -62,6 +63,18 @@ class PanelError(Exception):
 
     def __str__(self) -> str:  # KeyError would otherwise print the repr of the message
         return self.message
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        # Errors raised in another process (a Dask worker) reach the caller pickled: keep the
+        # class and every attribute (column, count, ids, ...), whatever the subclass's __init__.
+        return _rebuild, (type(self), self.message, dict(self.__dict__))
+
+
+def _rebuild(cls: type[PanelError], message: str, state: dict[str, Any]) -> PanelError:
+    err = cls.__new__(cls)
+    Exception.__init__(err, message)
+    err.__dict__.update(state)
+    return err
 
 
 class MissingColumnError(PanelError, KeyError):
@@ -102,6 +115,17 @@ class NotConstantError(PanelError, ValueError):
 
 class OptionError(PanelError, ValueError):
     """A transform or function option has a value outside its rules."""
+
+
+class SplitSubjectError(PanelError, ValueError):
+    """A subject's rows are spread over more than one partition of a partitioned frame, where
+    each partition must hold whole subjects.  ``ids`` are the first such subjects, ``count``
+    how many there are, ``partitions`` the partition numbers of the first one."""
+
+    def __init__(self, message: str, *, column: str | None = None, count: int | None = None,
+                 ids: Sequence[Any] = (), partitions: Sequence[int] = ()) -> None:
+        super().__init__(message, column=column, count=count, ids=ids)
+        self.partitions = list(partitions)
 
 
 class NestingError(PanelError, ValueError):
