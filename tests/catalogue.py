@@ -368,6 +368,9 @@ def renamed(tr: Transform, i: int) -> Transform:
     outs = tr.outputs()
     if "names" in fields and (len(outs) > 1 or "name" not in fields):
         return dataclasses.replace(tr, names=tuple(f"o{i}_{k}" for k in range(len(outs))))
-    if "name" in fields and len(outs) == 1:
-        return dataclasses.replace(tr, name=f"o{i}")
+    if "name" in fields:
+        # one output, or several named after it (a value and its "_flag" column)
+        again = dataclasses.replace(tr, name=f"o{i}")
+        if len(outs) == 1 or not set(again.outputs()) & set(outs):
+            return again
     return tr
