@@ -86,6 +86,8 @@ def test_item01_far_dates_order_and_difference_in_their_own_unit(unit, tz):
     same(floats(out, "y_cum_step"), [1.0 * g1 + 2.0 * g2, 1.0 * g1, 0.0])
 
 
+@pytest.mark.skipif(int(pd.__version__.split(".")[0]) < 3,
+                    reason="pandas 2 holds these Timestamps as objects it cannot convert: a typed error there")
 def test_item01_default_pandas3_datetimes_before_1677():
     # pd.Timestamp('1500-01-01') is stored as datetime64[us] by pandas 3: a plain user frame.
     t = pd.Series([pd.Timestamp("1500-01-01"), pd.Timestamp("2024-01-01"), pd.Timestamp("1600-01-01")])

@@ -322,6 +322,15 @@ def assert_past_only(
                 )
 
 
+def _no_silent_downcasting() -> Any:
+    """pandas 2.2 warns that ``where`` may downcast; pandas 3 no longer does (and has no such option)."""
+    import contextlib
+
+    if int(pd.__version__.split(".")[0]) >= 3:
+        return contextlib.nullcontext()
+    return pd.option_context("future.no_silent_downcasting", True)
+
+
 def _cut_tables(tables: Mapping[str, pd.DataFrame], transforms: Sequence[Transform], p: Panel,
                 r: int) -> dict[str, pd.DataFrame]:
     """Each side table cut at each subject's time of occasion rank ``r`` (subjects with fewer
@@ -329,7 +338,10 @@ def _cut_tables(tables: Mapping[str, pd.DataFrame], transforms: Sequence[Transfo
     frame = p.frame
     long_enough = p.subjects.lengths > r + 1
     at = np.where(long_enough, p.original_positions(np.minimum(p.subjects.starts + r, p.n - 1)), -1)
-    cut_of_subject = pd.api.extensions.take(frame[p.time_col].array, at, allow_fill=True)
+    times = frame[p.time_col]
+    # numpy-backed columns as ndarrays: pandas 2.2 warns when take gets a NumpyExtensionArray
+    values = times.to_numpy() if isinstance(times.dtype, np.dtype) else times.array
+    cut_of_subject = pd.api.extensions.take(values, at, allow_fill=True)
     out: dict[str, pd.DataFrame] = {}
     for name, table in tables.items():
         uses = [u for tr in transforms for u in tr.tables() if u.name == name]
@@ -346,7 +358,8 @@ def _cut_tables(tables: Mapping[str, pd.DataFrame], transforms: Sequence[Transfo
         for col in dict.fromkeys(e for u in uses for e in u.ends):
             late = (kept[col] > cut).fillna(False).to_numpy(dtype=bool)
             if late.any():
-                kept[col] = kept[col].where(~late, cut)
+                with _no_silent_downcasting():
+                    kept[col] = kept[col].where(~late, cut)
         out[name] = kept
     return out
 
