@@ -159,7 +159,9 @@ def check(
 
     if not parts:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in REPORT_COLUMNS})
-    report = pd.concat(parts, ignore_index=True)
+    # parts without a finding of some column (all missing) would decide the dtypes differently
+    # across pandas versions: the report's columns hold objects anyway
+    report = pd.concat([part.astype(object) for part in parts], ignore_index=True)
     rank = pd.Categorical(report["problem"], categories=list(PROBLEMS), ordered=True)
     report = report.assign(_o=rank.codes).sort_values(["_o"], kind="stable").drop(columns="_o")
     return report.reset_index(drop=True)[REPORT_COLUMNS]
