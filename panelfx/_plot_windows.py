@@ -53,7 +53,7 @@ def draw(ax: Any, frame: pd.DataFrame, panel: Panel, chosen: np.ndarray, keys: l
     parts = window_findings(panel, np.arange(panel.n), rows, windows=w, day=day)
     if not parts:
         return
-    report = pd.concat(parts, ignore_index=True)
+    report = pd.concat([part.astype(object) for part in parts], ignore_index=True)  # as check() joins them
     where = lookup(keys, report["id"].tolist())
     report, where = report[where >= 0], where[where >= 0]
     for problem, (marker, colour, text) in markers.items():
