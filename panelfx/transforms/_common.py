@@ -122,7 +122,8 @@ def difference(panel: Panel, col: str, source: np.ndarray) -> np.ndarray:
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class FlagHistory(Transform):
-    """Base of :class:`EventsSoFar` and :class:`~panelfx.transforms.ever.Ever`: counts of a flag so far."""
+    """Base of the event transforms (events so far, ever, time since): a flag column, whether the
+    current occasion counts, how numbers read as flags, and which occasions may count."""
 
     col: str
     include_current: bool = True

@@ -11,43 +11,27 @@ import numpy as np
 from .. import _kernels as K
 from .._options import checked_options
 from .._panel import Panel
-from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
-from ._common import check_where, event_flags, flag_words, with_where
+from .._transform import check_choice
+from ._common import FlagHistory, event_flags, flag_words
 
 WHICH = ("last", "first")
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
-class TimeSince(Transform):
-    """Configured :func:`time_since`."""
+class TimeSince(FlagHistory):
+    """Configured :func:`time_since` (the flag options of :class:`FlagHistory`, plus ``which``)."""
 
     type_name = "time_since"
-    col: str
     which: str = "last"
-    include_current: bool = True
-    any_nonzero: bool = False
-    where: str | None = None
-    name: str | None = None
 
     def __post_init__(self) -> None:
-        check_column_name("col", self.col)
-        check_name(self.name)
+        super().__post_init__()
         check_choice("which", self.which, WHICH)
-        check_bool("include_current", self.include_current)
-        check_bool("any_nonzero", self.any_nonzero)
-        check_where(self.where)
-
-    def inputs(self) -> tuple[str, ...]:
-        return with_where((self.col,), self.where)
 
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
         return (f"time_since_{self.col}" if self.which == "last" else f"time_since_first_{self.col}",)
-
-    @property
-    def past_only(self) -> bool:
-        return True
 
     def describe(self) -> str:
         which = "most recent" if self.which == "last" else "first"
