@@ -24,7 +24,7 @@ def main() -> Path:
     out = pfx.derive(df, pfx.rolling("sbp", "mean", span="90D"), id=ID, time="visit_date")
     report = pfx.check(df, id=ID, time="visit_date", spacing="30D")
     fig, (left, right) = plt.subplots(1, 2, figsize=(12, 4.2))
-    plot.trajectories(out, "sbp", id=ID, time="day", subjects=6, overlay="sbp_mean_90D", seed=1, ax=left)
+    plot.trajectories(out, "sbp", id=ID, time="day", subjects=6, overlay="sbp_mean_90d", seed=1, ax=left)
     plot.visit_schedule(df, id=ID, time="visit_date", report=report, subjects=25, seed=1, ax=right)
     fig.suptitle("Invented demo cohort (panelfx.demo.cohort, seed 2026)", fontsize=10)
     fig.tight_layout()

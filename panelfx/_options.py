@@ -50,6 +50,7 @@ HABITS: dict[str, tuple[str, ...]] = {
     "suffix": ("name",),
     "prefix": ("name",),
     "tolerance": ("within",),
+    "level": ("between", "levels"),  # renamed: within_between(level=) is between= now
 }
 
 #: Why an option has no counterpart, for habits that have none.

@@ -520,12 +520,6 @@ class Flags(Deferred):
         return pd.arrays.BooleanArray(v, panel.ordering.unsort(self.missing))
 
 
-def safe_label(value: Any) -> str:
-    """A span or number as part of a formula-safe column name: '30D' -> '30d', 2.5 -> '2p5'."""
-    text = value.replace(" ", "") if isinstance(value, str) else f"{value:g}"
-    text = text.lower().replace(".", "p").replace("-", "m").replace("+", "")
-    return "".join(ch if ch.isalnum() or ch == "_" else "_" for ch in text)
-
 
 @dataclass(frozen=True, eq=False)
 class NativeTimes(Deferred):

@@ -10,6 +10,7 @@ import pandas as pd
 
 from ._check_visits import planned_findings, window_findings
 from ._interval_check import interval_findings
+from ._options import checked_options
 from ._panel import Panel, as_id_list, require_columns, time_kind
 from .errors import OptionError
 
@@ -32,6 +33,7 @@ PROBLEMS = {
 }
 
 
+@checked_options
 def check(
     frame: pd.DataFrame,
     *,

@@ -10,17 +10,19 @@ fields, and read back through ``panelfx._transform.REGISTRY``.  The type of each
 is checked against the field's annotation, then the transform's own ``__post_init__``
 checks its rules, so a new transform needs no code here.
 
-File layout (version 1)::
+File layout (version 2)::
 
     {
       "format": "panelfx.derivation",
-      "version": 1,
+      "version": 2,
       "description": "...",
       "panel": {"id": "pid", "time": "day", "unit": null},
       "transforms": [{"type": "lag", "options": {"col": "sbp", ...}}, ...]
     }
 
 Options left out of a file take the transform's defaults; unknown keys are errors.
+Version-1 files (before default names changed) still load, with the columns they gave
+then (:mod:`panelfx._upgrade`).
 """
 
 from __future__ import annotations
@@ -40,6 +42,7 @@ import pandas as pd
 
 from ._panel import UNITS_NS, as_id_list, key_column, time_kind
 from ._transform import REGISTRY, Transform
+from ._upgrade import upgrade_v1
 from .derive import derive, plan
 from .errors import OptionError, PanelError
 
@@ -47,7 +50,7 @@ __all__ = ["Derivation", "DerivationFileError", "FORMAT", "VERSION", "DICTIONARY
 
 #: Marker of a saved derivation and the version of the layout this panelfx writes and reads.
 FORMAT = "panelfx.derivation"
-VERSION = 1
+VERSION = 2
 
 #: Columns of :meth:`Derivation.dictionary`, in order.
 DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit"]
@@ -314,7 +317,9 @@ class Derivation:
         version = _required(doc, "version", "")
         if isinstance(version, bool) or not isinstance(version, int):
             raise DerivationFileError(f"must be an integer, got {version!r}", path="version")
-        if version != VERSION:
+        if version == 1:  # the same columns as when it was saved (see panelfx._upgrade)
+            doc = {**doc, "transforms": upgrade_v1(doc.get("transforms"))}
+        elif version != VERSION:
             newer = " (written by a newer panelfx: upgrade panelfx)" if version > VERSION else ""
             raise DerivationFileError(f"format version {version} is not supported; this panelfx reads version "
                                       f"{VERSION}{newer}", path="version")

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import Deferred
+from ._options import checked_options
 from ._panel import Panel, as_id_list
 from ._tables import check_table_uses, side_tables
 from ._transform import Transform
@@ -78,6 +79,7 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
                                 column=out, count=1)
 
 
+@checked_options
 def derive(
     frame: pd.DataFrame,
     *transforms: Transform,

@@ -16,6 +16,7 @@ import pandas as pd
 
 from ._columns import to_float
 from ._nesting import CODES, Codes, check_levels, compact, level_codes, parents
+from ._options import checked_options
 from ._panel import require_columns
 from ._transform import check_choice
 from .errors import OptionError
@@ -27,6 +28,7 @@ Method = Literal["anova", "reml"]
 TABLE_COLUMNS = ("level", "units", "mean_size", "df", "sum_sq", "mean_sq", "variance", "negative", "share", "icc")
 
 
+@checked_options
 def variance_components(
     frame: pd.DataFrame,
     col: str,
@@ -222,6 +224,7 @@ def _reml(y: np.ndarray, units: list[np.ndarray]) -> tuple[np.ndarray, float]:
     return np.asarray(variance), float(np.asarray(fit.fe_params)[0])
 
 
+@checked_options
 def design_effect(*, icc: float, size: float, cv: float = 0.0) -> float:
     """Design effect of a mean over clusters, for planning: ``1 + ((1 + cv**2) * size - 1) * icc``.
 

@@ -26,6 +26,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
+from ._options import checked_options
 from .errors import OptionError
 
 __all__ = ["Windows", "windows", "OVERLAP_RULES", "Row"]
@@ -140,6 +141,7 @@ class Windows:
         return f"pfx.windows({self.rows()!r}{extra})"  # the call, as transforms show theirs
 
 
+@checked_options
 def windows(rows: Iterable[Sequence[Any]] | pd.DataFrame | Windows, *,
             overlap: Literal["none", "nearest_target"] = "none") -> Windows:
     """Planned visits with analysis windows, checked when built.

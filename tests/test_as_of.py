@@ -45,9 +45,9 @@ def test_carry_forward_then_lag_measures_the_age_from_the_wrong_row():
     merged = pd.concat([VISITS[VISITS["pid"] == 1].assign(alt=np.nan),
                         labs.rename(columns={"drawn": "day"})[["pid", "day", "alt"]]])
     merged = merged.groupby(["pid", "day"], as_index=False)["alt"].max()
-    out = pfx.derive(merged, pfx.carry_forward("alt"), pfx.lag("alt_filled", offset=1, tolerance=6),
+    out = pfx.derive(merged, pfx.carry_forward("alt"), pfx.lag("alt_locf", offset=1, tolerance=6),
                      id="pid", time="day")
-    assert out.loc[out["day"] == 20, "alt_filled_lag_1"].item() == 45.0  # day 8's value, "aged" from day 15
+    assert out.loc[out["day"] == 20, "alt_locf_lag_1"].item() == 45.0  # day 8's value, "aged" from day 15
     got = run(pfx.as_of("labs", "alt", time="drawn", within=7, include_current=False), labs=labs)
     assert np.isnan(got.loc[got["day"] == 20, "alt_asof"].item())
 

@@ -29,7 +29,7 @@ def test_limits_by_hand():
     out = run(df, pfx.carry_forward("y"), pfx.carry_forward("y", limit=2, name="lim2"),
               pfx.carry_forward("y", max_span=2, name="span2"),
               pfx.carry_forward("y", limit=1, max_span=5, name="both"))
-    np.testing.assert_array_equal(out["y_filled"], [NAN, 5, 5, 5, 5, 7, NAN, NAN])
+    np.testing.assert_array_equal(out["y_locf"], [NAN, 5, 5, 5, 5, 7, NAN, NAN])
     np.testing.assert_array_equal(out["lim2"], [NAN, 5, 5, 5, NAN, 7, NAN, NAN])
     # t = 3 is exactly 2 after the value at t = 1: still carried
     np.testing.assert_array_equal(out["span2"], [NAN, 5, 5, 5, NAN, 7, NAN, NAN])
@@ -46,13 +46,13 @@ def test_keeps_dtype_unsorted_and_datetime_span():
         return [None if pd.isna(v) else v for v in s.tolist()]
 
     # subject a in time order: 01-01 "I", 01-05 missing (filled "I"), 02-20 "III"; b has no value
-    assert values(out["grade_filled"]) == ["III", "I", "I", None]
-    assert out["grade_filled"].dtype == df["grade"].dtype
+    assert values(out["grade_locf"]) == ["III", "I", "I", None]
+    assert out["grade_locf"].dtype == df["grade"].dtype
     assert values(out["g30"]) == ["III", "I", "I", None]
     assert list(out.index) == [4, 3, 2, 1]
     text = df.assign(grade=["x", None, None, "y"])
     # a in time order: 01-01 and 01-05 missing, before its only value: nothing to carry
-    assert values(run(text, pfx.carry_forward("grade"))["grade_filled"]) == ["x", None, None, "y"]
+    assert values(run(text, pfx.carry_forward("grade"))["grade_locf"]) == ["x", None, None, "y"]
 
 
 def test_options_round_trip():

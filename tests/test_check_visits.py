@@ -207,4 +207,4 @@ def test_protocol_grid_until_the_end_of_follow_up(pbcseq):
         subset=["bili"]).drop_duplicates(["id", "v"]).shape[0]
     assert counts["missed"] > 0
     filled = pfx.derive(grid, pfx.carry_forward("bili", flag=True), id="id", time="visit_number")
-    assert (filled["bili_filled_flag"].notna() == (grid["bili"].isna() & filled["bili_filled"].notna())).all()
+    assert (filled["bili_locf_flag"].notna() == (grid["bili"].isna() & filled["bili_locf"].notna())).all()

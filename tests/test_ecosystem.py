@@ -119,3 +119,107 @@ def test_submodules_still_import():
     assert d.Derivation is pfx.Derivation
     with pytest.raises(AttributeError, match="has no attribute 'lagg'"):
         pfx.lagg  # noqa: B018
+
+
+# ----------------------------------------------------------------------- frame-level options
+
+FRAME_FUNCTIONS = ["derive", "check", "collapse_ties", "visit_grid", "episodes", "person_time", "snapshot",
+                   "subject_summary", "variance_components", "design_effect", "grid", "windows"]
+
+
+@pytest.mark.parametrize("name", FRAME_FUNCTIONS)
+def test_frame_functions_check_their_options(name):
+    """The functions that take a whole frame refuse a pandas-habit keyword with the typed error
+    and its hint, before any work, as the transform constructors do."""
+    func = getattr(pfx, name)
+    with pytest.raises(pfx.UnknownOptionError, match=rf"^{name}\(\) has no option groupby=.*derive\(id=") as err:
+        func(groupby="pid")
+    assert isinstance(err.value, TypeError)
+
+
+# ---------------------------------------------------------------------------- typed options
+
+
+def _choice_options():
+    """(entry, option, Literal values) for every Literal-typed option of a public constructor."""
+    import typing
+
+    from panelfx._transform import constructor
+
+    seen, out = set(), []
+    for _, entry in ENTRIES:
+        tr = entry.build(True)
+        func = constructor(type(tr))
+        hints = typing.get_type_hints(func)
+        for p, hint in hints.items():
+            # Literal[...] itself, or inside Optional (Literal[...] | None)
+            arms = [hint] if typing.get_origin(hint) is typing.Literal else typing.get_args(hint)
+            values = tuple(v for arm in arms if typing.get_origin(arm) is typing.Literal for v in typing.get_args(arm))
+            if values and (type(tr), p) not in seen:
+                seen.add((type(tr), p))
+                out.append(pytest.param(tr, p, values, id=f"{tr.type_name}.{p}"))
+    return out
+
+
+CHOICES = _choice_options()
+
+
+def test_option_values_are_typed():
+    """Editors offer option values and type checkers catch kind='pct': every option that takes
+    one of a few words is a Literal in the constructor's signature."""
+    found = {p.id for p in CHOICES}
+    for must in ["change_from_baseline.kind", "change_from_baseline.rule", "change_from_previous.kind",
+                 "baseline.rule", "cumulative.method", "cumulative.missing", "rolling.stat", "rolling.closed",
+                 "time_since.which", "within_between.between", "within_between.codes", "as_of.direction",
+                 "table_window.stat", "exposure.stat", "study_day.convention", "visit_pick.rule"]:
+        assert must in found
+
+
+@pytest.mark.parametrize(("tr", "option", "values"), CHOICES)
+def test_literal_types_match_the_checked_choices(tr, option, values):
+    """The Literal in the signature lists exactly the words the transform accepts: a word
+    outside it is refused with a message listing the same words."""
+    with pytest.raises(pfx.OptionError, match=f"{option} must be one of") as err:
+        dataclasses.replace(tr, **{option: "not_a_choice"})
+    listed = str(err.value).split("must be one of ")[1].split("]")[0] + "]"
+    assert sorted(eval(listed)) == sorted(values)
+
+
+# ------------------------------------------------------------------------------ default names
+
+
+@pytest.mark.parametrize("item", ENTRIES, ids=entry_id)
+def test_default_names_are_formula_safe(item):
+    """Every default output name of every catalogue entry is a Python identifier (so model
+    formulas take it unquoted; statsmodels/patsy parse formula terms as Python), its derived part
+    is lower case, and the column comes first."""
+    import keyword
+    import re
+
+    _, entry = item
+    for numeric in (True, False):
+        tr = entry.build(numeric)
+        if getattr(tr, "name", None) is not None or getattr(tr, "names", None) is not None:
+            continue
+        for out in tr.outputs():
+            assert out.isidentifier() and not keyword.iskeyword(out), out
+            assert re.fullmatch(r"[a-z0-9_]+", out), out  # the catalogue's columns are lower case too
+            first = getattr(tr, "col", None) or getattr(tr, "dose", None) or getattr(tr, "table", None)
+            if isinstance(first, str):
+                assert out.startswith(first + "_"), out
+
+
+def test_default_names_work_in_a_statsmodels_formula():
+    """The default names go straight into a statsmodels formula (the outside check: patsy parses
+    the terms), including a span of 2.5 and a percent change."""
+    import numpy as np
+    import pandas as pd
+    import statsmodels.formula.api as smf
+
+    rng = np.random.default_rng(7)  # invented: 30 people, 6 weekly weights
+    df = pd.DataFrame({"pid": np.repeat(np.arange(30), 6), "wk": np.tile(np.arange(6.0), 30)})
+    df["kg"] = 80 + rng.normal(0, 3, 30).repeat(6) - 0.2 * df["wk"] + rng.normal(0, 0.5, len(df))
+    out = pfx.derive(df, pfx.rolling("kg", span=2.5), pfx.change_from_baseline("kg", "percent"),
+                     pfx.lag("kg"), id="pid", time="wk")
+    fit = smf.ols("kg_percent_change ~ kg_mean_2p5 + kg_lag1", data=out).fit()
+    assert set(fit.params.index) == {"Intercept", "kg_mean_2p5", "kg_lag1"}

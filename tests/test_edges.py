@@ -79,9 +79,9 @@ def test_item01_far_dates_order_and_difference_in_their_own_unit(unit, tz):
     same(floats(out, "time_since_baseline"), [g1 + g2, g1, 0.0])
     # 2000-01-01 - 36500 days = 1900-01-25: latest occasion at or before it is 1000-01-01 (1.0);
     # 9999-12-31 - 36500 days is in 9900: latest occasion at or before it is 2000-01-01 (2.0)
-    same(floats(out, "y_lag_36500D"), [2.0, 1.0, NAN])
+    same(floats(out, "y_lag_36500d"), [2.0, 1.0, NAN])
     # (t - 36500 days, t] holds the occasion itself only
-    assert out["y_count_36500D"].tolist() == [1, 1, 1]
+    assert out["y_count_36500d"].tolist() == [1, 1, 1]
     # step integral: 1.0 * g1, then + 2.0 * g2 (value held until the next occasion)
     same(floats(out, "y_cum_step"), [1.0 * g1 + 2.0 * g2, 1.0 * g1, 0.0])
 
@@ -109,7 +109,7 @@ def test_item01_nanosecond_gap_longer_than_292_years():
     g = days(dt.date(1678, 1, 1), dt.date(2262, 1, 1))  # 213301.0 by Python datetime
     same(floats(out, "gap"), [NAN, g])
     same(floats(out, "time_since_baseline"), [0.0, g])
-    same(floats(out, "y_filled"), [1.0, NAN])  # 213301 days is far more than 3650: not carried
+    same(floats(out, "y_locf"), [1.0, NAN])  # 213301 days is far more than 3650: not carried
     same(floats(out, "cum_restart"), [1.0, 0.0])  # gap > 3650 days: restarts, missing adds 0
     same(floats(out, "y_cum_step"), [0.0, 1.0 * g])
 
@@ -187,9 +187,9 @@ def test_item04_lag_baseline_carry_forward_keep_big_integers_exact():
     out = run(df, pfx.baseline("x"), pfx.carry_forward("x"), pfx.lag("xn"), pfx.carry_forward("xn"),
               pfx.baseline("xn", "last_before", reference=1))
     assert out["x_baseline"].dtype == np.int64 and out["x_baseline"].tolist() == [BIG + 1] * 3
-    assert out["x_filled"].dtype == np.int64 and out["x_filled"].tolist() == [BIG + 1, BIG + 3, BIG + 8]
+    assert out["x_locf"].dtype == np.int64 and out["x_locf"].tolist() == [BIG + 1, BIG + 3, BIG + 8]
     assert out["xn_lag1"].dtype == "Int64" and out["xn_lag1"].tolist() == [pd.NA, BIG + 1, pd.NA]
-    assert out["xn_filled"].tolist() == [BIG + 1, BIG + 1, BIG + 8]
+    assert out["xn_locf"].tolist() == [BIG + 1, BIG + 1, BIG + 8]
     assert out["xn_baseline"].tolist() == [BIG + 1] * 3  # last non-missing value at t <= 1: t = 0
 
 
@@ -282,15 +282,15 @@ def test_item06_decimal_hours_rolling_window():
     df = pd.DataFrame({"pid": 1, "t": [0.1, 0.2, 0.3], "y": [1.0, 2.0, 4.0]})
     out = run(df, pfx.rolling("y", "count", span=0.2), pfx.rolling("y", "sum", span=0.2))
     # Decimal: window (t - 0.2, t]; at 0.3 -> (0.1, 0.3] holds 0.2, 0.3; at 0.2 -> (0.0, 0.2] holds 0.1, 0.2
-    assert out["y_count_0.2"].tolist() == [1, 2, 2]
-    same(floats(out, "y_sum_0.2"), [1.0, 3.0, 6.0])
+    assert out["y_count_0p2"].tolist() == [1, 2, 2]
+    same(floats(out, "y_sum_0p2"), [1.0, 3.0, 6.0])
 
 
 def test_item06_decimal_lag_by_time():
     df = pd.DataFrame({"pid": 1, "t": [0.1, 0.3, 0.4], "y": [1.0, 3.0, 4.0]})
     out = run(df, pfx.lag("y", offset=0.2), pfx.lag("y", offset=0.3, tolerance=0.0, name="l3"))
     # Decimal: 0.3 - 0.2 = 0.1 -> value at 0.1; 0.4 - 0.2 = 0.2 -> latest at or before: 0.1
-    same(floats(out, "y_lag_0.2"), [NAN, 1.0, 1.0])
+    same(floats(out, "y_lag_0p2"), [NAN, 1.0, 1.0])
     # 0.4 - 0.3 = 0.1 exactly, tolerance 0 keeps a source exactly there; 0.3 - 0.3 = 0.0: none
     same(floats(out, "l3"), [NAN, NAN, 1.0])
 
@@ -299,7 +299,7 @@ def test_item06_decimal_limits():
     df = pd.DataFrame({"pid": 1, "t": [0.1, 0.4, 0.8], "y": [1.0, NAN, 5.0]})
     out = run(df, pfx.carry_forward("y", max_span=0.3), pfx.cumulative("y", restart_after=0.3),
               pfx.lag("y", offset=0.1, tolerance=0.2, name="tol"))
-    same(floats(out, "y_filled"), [1.0, 1.0, 5.0])  # 0.4 - 0.1 = 0.3 <= 0.3: carried
+    same(floats(out, "y_locf"), [1.0, 1.0, 5.0])  # 0.4 - 0.1 = 0.3 <= 0.3: carried
     same(floats(out, "y_cum"), [1.0, 1.0, 5.0])  # gap 0.3 (not longer): no restart; gap 0.4: restart
     # at 0.4: target 0.3, latest at or before is 0.1, exactly 0.2 older than the target: kept
     same(floats(out, "tol"), [NAN, 1.0, NAN])  # at 0.8: target 0.7 -> 0.4, older than 0.7 - 0.2: dropped
@@ -311,9 +311,9 @@ def test_item06_integer_times_with_decimal_span():
     out = run(df, pfx.rolling("y", "count", span=2.5), pfx.lag("y", offset=2.5),
               pfx.rolling("y", "count", span=2.0, closed="both", name="both2"))
     # (t - 2.5, t]: at 1e16+2 -> (1e16 - 0.5, ...] holds 1e16 and 1e16+2; at 1e16+3 -> (1e16+0.5, ...]: 2 rows
-    assert out["y_count_2.5"].tolist() == [1, 2, 2]
+    assert out["y_count_2p5"].tolist() == [1, 2, 2]
     # at 1e16+3: latest at or before 1e16+0.5 is 1e16; at 1e16+2: at or before 1e16-0.5: none
-    same(floats(out, "y_lag_2.5"), [NAN, NAN, 1.0])
+    same(floats(out, "y_lag_2p5"), [NAN, NAN, 1.0])
     assert out["both2"].tolist() == [1, 2, 2]  # [t-2, t]: 1e16+2 reaches back to 1e16 exactly
 
 
@@ -328,7 +328,7 @@ def test_item06_other_floats_compare_exactly_in_binary():
               pfx.lag("y", offset=s, tolerance=0.0, name="exact"), pfx.carry_forward("y", max_span=s))
     assert out["both"].tolist() == [1, 0]  # [b - s, b] holds only b (y missing there): a is not reached
     same(floats(out, "exact"), [NAN, NAN])  # a is older than b - s: tolerance 0 drops it
-    same(floats(out, "y_filled"), [1.0, NAN])  # b - a > s: not carried
+    same(floats(out, "y_locf"), [1.0, NAN])  # b - a > s: not carried
 
 
 # ============================================================================ item 7
@@ -340,10 +340,10 @@ def test_item07_lag_offset_saturates_near_lower_bound():
     # 1677 - 100 years is before any representable ns time: no occasion that early
     # 2000-01-01 - 36500 days = 1900-01-25 (Python datetime): latest at or before is 1677-09-23 (2.0)
     assert dt.date(2000, 1, 1) - dt.timedelta(days=36500) == dt.date(1900, 1, 25)
-    same(floats(out, "y_lag_36500D"), [NAN, NAN, 2.0])
+    same(floats(out, "y_lag_36500d"), [NAN, NAN, 2.0])
     # tolerance: 1677-09-23 is 81207 days older than 1900-01-25 (Python dates), more than 36500: dropped
     same(floats(out, "tol"), [NAN, NAN, NAN])
-    assert out["y_count_36500D"].tolist() == [1, 2, 1]
+    assert out["y_count_36500d"].tolist() == [1, 2, 1]
 
 
 def test_item07_huge_span_strings_are_spans():
@@ -353,9 +353,9 @@ def test_item07_huge_span_strings_are_spans():
         df = pd.DataFrame({"pid": 1, "t": t.as_unit(unit), "y": [1.0, NAN, 4.0]})
         out = run(df, pfx.rolling("y", "sum", span="1000000D"), pfx.lag("y", offset="1000000D"),
                   pfx.carry_forward("y", max_span="1000000D"))
-        same(floats(out, "y_sum_1000000D"), [1.0, 1.0, 5.0])  # running sums by hand, missing skipped
-        same(floats(out, "y_lag_1000000D"), [NAN, NAN, NAN])  # nothing 2738 years earlier
-        same(floats(out, "y_filled"), [1.0, 1.0, 4.0])  # carried one year, far less than the limit
+        same(floats(out, "y_sum_1000000d"), [1.0, 1.0, 5.0])  # running sums by hand, missing skipped
+        same(floats(out, "y_lag_1000000d"), [NAN, NAN, NAN])  # nothing 2738 years earlier
+        same(floats(out, "y_locf"), [1.0, 1.0, 4.0])  # carried one year, far less than the limit
 
 
 # ============================================================================ item 8
@@ -395,7 +395,7 @@ def test_item09_offset_below_float_spacing():
     df = pd.DataFrame({"pid": 1, "t": [1e16, 1e16 + 2], "y": [1.0, 2.0]})
     out = run(df, pfx.lag("y", offset=0.5))
     # 1e16 + 2 - 0.5 is between the two times (spacing of floats there is 2): the value at 1e16
-    same(floats(out, "y_lag_0.5"), [NAN, 1.0])
+    same(floats(out, "y_lag_0p5"), [NAN, 1.0])
 
 
 @pytest.mark.parametrize("offset", [0.5, 1e-300, 5e-324])
@@ -551,8 +551,8 @@ def test_item11_date_objects_as_time_column():
     assert out["occasion"].tolist() == [3, 1, 2]
     same(floats(out, "gap"), [days(d[2], d[0]), NAN, days(d[1], d[2])])  # 30.0, 30.0 by datetime
     # 2024-03-01 - 30 days = 2024-01-31 (on an occasion, included); 2024-01-31 - 30 = 2024-01-01
-    same(floats(out, "y_lag_30D"), [2.0, NAN, 1.0])
-    same(floats(out, "y_sum_30D"), [3.0, 1.0, 2.0])  # (t - 30D, t]: the edge occasion is left out
+    same(floats(out, "y_lag_30d"), [2.0, NAN, 1.0])
+    same(floats(out, "y_sum_30d"), [3.0, 1.0, 2.0])  # (t - 30D, t]: the edge occasion is left out
 
 
 @pytest.mark.parametrize("time_kind", ["datetime", "date_objects", "date32"])
@@ -664,7 +664,7 @@ def test_item13_carry_forward_max_span_carries_a_value_exactly_s_old(kind, a, b)
 def test_item13_carry_forward_limit_counts_occasions():
     df = pd.DataFrame({"pid": 1, "t": [0, 1, 2, 3], "y": [1.0, NAN, NAN, NAN]})
     out = run(df, pfx.carry_forward("y", limit=2))
-    same(floats(out, "y_filled"), [1.0, 1.0, 1.0, NAN])  # carried to exactly 2 later occasions
+    same(floats(out, "y_locf"), [1.0, 1.0, 1.0, NAN])  # carried to exactly 2 later occasions
 
 
 @pytest.mark.parametrize("a, b", PAIRS)
@@ -698,7 +698,7 @@ def test_item13_occasion_windows_min_valid_and_include_current():
               pfx.events_so_far("f", include_current=False, name="n_prior"))
     same(floats(out, "s3"), [NAN, NAN, 5.0, 12.0])  # windows {1}, {1, -}, {1, -, 4}, {-, 4, 8}; 2 values needed
     same(floats(out, "prior"), [NAN, 1.0, 2.0, 1.0])  # strictly earlier events at t = 0, then 2
-    assert out["f_count"].tolist() == [1, 1, 2, 3] and out["n_prior"].tolist() == [0, 1, 1, 2]
+    assert out["f_events"].tolist() == [1, 1, 2, 3] and out["n_prior"].tolist() == [0, 1, 1, 2]
 
 
 # ============================================================================ beyond the spec

@@ -156,7 +156,7 @@ def test_decimal_probe_of_the_first_rows_is_confirmed_on_all_rows():
     df = pd.DataFrame({"id": 1, "t": t, "y": 1.0})
     out = pfx.derive(df, pfx.rolling("y", "count", span=0.02), id="id", time="t")
     # (t - 0.02, t] holds the row before (0.01 earlier) and itself, exactly as decimals
-    assert out["y_count_0.02"].iloc[-1] == 2 and out["y_count_0.02"].iloc[-49] == 2
+    assert out["y_count_0p02"].iloc[-1] == 2 and out["y_count_0p02"].iloc[-49] == 2
 
 
 def test_decimal_probe_rejects_binary_floats_after_the_first_rows():

@@ -33,21 +33,21 @@ def test_time_since_by_hand():
               pfx.time_since("ev"), pfx.time_since("ev", "first"),
               pfx.time_since("ev", include_current=False, name="prior_last"),
               pfx.time_since("ev", "first", include_current=False, name="prior_first"))
-    np.testing.assert_array_equal(out["time_since_ev"], [NAN, 0, 3, 0, 2])
-    np.testing.assert_array_equal(out["time_since_first_ev"], [NAN, 0, 3, 5, 7])
+    np.testing.assert_array_equal(out["ev_time_since"], [NAN, 0, 3, 0, 2])
+    np.testing.assert_array_equal(out["ev_time_since_first"], [NAN, 0, 3, 5, 7])
     np.testing.assert_array_equal(out["prior_last"], [NAN, NAN, 3, 5, 2])
     np.testing.assert_array_equal(out["prior_first"], [NAN, NAN, 3, 5, 7])
-    assert out["time_since_ev"].dtype == "float64"
+    assert out["ev_time_since"].dtype == "float64"
 
 
 def test_counts_and_ever_by_hand():
     out = run(events_frame(), pfx.events_so_far("ev"), pfx.events_so_far("ev", include_current=False, name="prior"),
               pfx.ever("ev"), pfx.ever("ev", include_current=False, name="ever_before"))
-    assert out["ev_count"].tolist() == [0, 1, 1, 2, 2]
+    assert out["ev_events"].tolist() == [0, 1, 1, 2, 2]
     assert out["prior"].tolist() == [0, 0, 1, 1, 2]
     assert out["ev_ever"].tolist() == [False, True, True, True, True]
     assert out["ever_before"].tolist() == [False, False, True, True, True]
-    assert out["ev_count"].dtype == "int64" and out["ev_ever"].dtype == bool
+    assert out["ev_events"].dtype == "int64" and out["ev_ever"].dtype == bool
 
 
 def test_numeric_flags_datetimes_and_unsorted_rows():
@@ -57,9 +57,9 @@ def test_numeric_flags_datetimes_and_unsorted_rows():
                        "n": [0, 2, -1, np.nan, 0]}, index=[10, 11, 12, 13, 14])
     out = run(df, pfx.time_since("n", any_nonzero=True), pfx.events_so_far("n", any_nonzero=True),
               pfx.time_since("n", "first", any_nonzero=True), unit="h")
-    np.testing.assert_array_equal(out["time_since_n"], [NAN, 0, 0, 24, NAN])
-    np.testing.assert_array_equal(out["time_since_first_n"], [NAN, 7 * 24, 0, 24, NAN])
-    assert out["n_count"].tolist() == [0, 2, 1, 1, 0]
+    np.testing.assert_array_equal(out["n_time_since"], [NAN, 0, 0, 24, NAN])
+    np.testing.assert_array_equal(out["n_time_since_first"], [NAN, 7 * 24, 0, 24, NAN])
+    assert out["n_events"].tolist() == [0, 2, 1, 1, 0]
     assert list(out.index) == [10, 11, 12, 13, 14]
 
 
@@ -103,10 +103,10 @@ def test_consistency_between_the_three(case):
     and it never exceeds the time since the first event."""
     out = pfx.derive(case.frame, pfx.events_so_far("flag"), pfx.ever("flag"), pfx.time_since("flag"),
                     pfx.time_since("flag", "first"), **case.keys)
-    assert (out["flag_ever"] == (out["flag_count"] > 0)).all()
-    assert (out["time_since_flag"].isna() == ~out["flag_ever"]).all()
-    both = out["time_since_flag"].notna()
-    assert (out.loc[both, "time_since_flag"] <= out.loc[both, "time_since_first_flag"]).all()
+    assert (out["flag_ever"] == (out["flag_events"] > 0)).all()
+    assert (out["flag_time_since"].isna() == ~out["flag_ever"]).all()
+    both = out["flag_time_since"].notna()
+    assert (out.loc[both, "flag_time_since"] <= out.loc[both, "flag_time_since_first"]).all()
 
 
 # ---------------------------------------------------------------------------- errors

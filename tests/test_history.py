@@ -70,7 +70,7 @@ def test_change_from_baseline_kinds(visits):
     # rows: b10, a20, a0, b0, a10, b25; baseline a = 6 (day 10), b = 0 (day 0)
     assert col(out, "y_change") == [4.0, 3.0, None, 0.0, 0.0, 5.0]
     # b's baseline is 0: percent and ratio are missing, never infinite
-    assert col(out, "y_pct_change") == [None, 50.0, None, None, 0.0, None]
+    assert col(out, "y_percent_change") == [None, 50.0, None, None, 0.0, None]
     assert col(out, "y_ratio") == [None, 1.5, None, None, 1.0, None]
     # up to and including the baseline occasion: missing
     assert col(out, "post") == [4.0, 3.0, None, None, None, 5.0]
@@ -87,7 +87,7 @@ def test_change_from_previous_kinds(visits):
     )
     # a: NaN, 6, 9 at 0, 10, 20;  b: 0, 4, 5 at 0, 10, 25
     assert col(out, "y_diff") == [4.0, 3.0, None, None, None, 1.0]
-    assert col(out, "y_pct_diff") == [None, 50.0, None, None, None, 25.0]
+    assert col(out, "y_percent_diff") == [None, 50.0, None, None, None, 25.0]
     assert col(out, "y_rate") == [0.4, 0.3, None, None, None, pytest.approx(1 / 15)]
     assert col(out, "rate_skip") == [0.4, 0.3, None, None, None, pytest.approx(1 / 15)]
 

@@ -135,7 +135,7 @@ def test_layout():
 
 def test_left_out_options_take_defaults():
     """Hand-written files may give only the options that differ from the defaults."""
-    text = json.dumps({"format": FORMAT, "version": 1, "panel": {"id": "pid", "time": "day"},
+    text = json.dumps({"format": FORMAT, "version": VERSION, "panel": {"id": "pid", "time": "day"},
                        "transforms": [{"type": "change_from_baseline", "options": {"col": "sbp", "kind": "percent"}},
                                       {"type": "occasion"}]})
     d = Derivation.from_json(text)
@@ -265,11 +265,11 @@ MALFORMED = [
     ("empty", "  \n", "", "the file is empty"),
     ("not an object", "[1, 2]", "", "must hold a JSON object, got a list"),
     ("NaN", _TEXT.replace("3", "NaN"), "", "NaN is not a JSON value"),
-    ("duplicate key", _TEXT.replace('"version": 1,', '"version": 1, "version": 1,'), "", "duplicate key 'version'"),
+    ("duplicate key", _TEXT.replace('"version": 2,', '"version": 2, "version": 2,'), "", "duplicate key 'version'"),
     ("no format", _doc(_drop(["format"])), "format", "not a saved panelfx derivation"),
     ("other format", _doc(_set(["format"], "something.else")), "format", "format is 'something.else'"),
     ("no version", _doc(_drop(["version"])), "version", "missing key"),
-    ("newer version", _doc(_set(["version"], 2)), "version", "version 2 is not supported.*newer panelfx"),
+    ("newer version", _doc(_set(["version"], 3)), "version", "version 3 is not supported.*newer panelfx"),
     ("version 0", _doc(_set(["version"], 0)), "version", "version 0 is not supported"),
     ("version as text", _doc(_set(["version"], "1")), "version", "must be an integer, got '1'"),
     ("unknown top key", _doc(_set(["panelfx_version"], "0.1")), "panelfx_version", "unknown key"),
@@ -306,8 +306,8 @@ MALFORMED = [
      "periods must be a non-zero integer, got 0"),
     ("number for a name", _doc(_set(T0 + ["col"], 5)), "transforms[0].options.col", "must be a string, got an integer"),
     ("empty column name", _doc(_set(T0 + ["col"], "")), "transforms[0].options.col", "col must be a column name"),
-    ("bad choice", _doc(_set(T1 + ["level"], "median")), "transforms[1].options.level",
-     "level must be one of \\['mean', 'baseline'\\], got 'median'"),
+    ("bad choice", _doc(_set(T1 + ["between"], "median")), "transforms[1].options.between",
+     "between must be one of \\['mean', 'baseline'\\], got 'median'"),
     ("names of wrong length", _doc(_set(T1 + ["names"], ["a", "b", "c"])), "transforms[1].options.names",
      "names must be two different column names"),
     ("names not a list", _doc(_set(T1 + ["names"], "ab")), "transforms[1].options.names", "got a string"),
@@ -353,3 +353,32 @@ def test_missing_column_is_reported_when_applied():
     frame = pd.DataFrame({"pid": [1, 1], "day": [0, 1], "sbp": [1.0, 2.0]})
     with pytest.raises(pfx.MissingColumnError, match="column 'dbp' needed by transform #1 \\(lag\\) is not in the frame"):
         d.apply(frame)
+
+
+def test_version_1_files_keep_their_columns():
+    """A file saved before the default names changed (format version 1) re-runs with the
+    columns it gave then: each changed default is pinned as an explicit name, within_between's
+    level= is read as between=, and names that did not change stay defaults.  The old names
+    below are those version 1 wrote (the previous release's own outputs, kept in this test)."""
+    old = [
+        ({"type": "change_from_baseline", "options": {"col": "sbp", "kind": "percent"}}, "sbp_pct_change"),
+        ({"type": "change_from_previous", "options": {"col": "sbp", "kind": "percent"}}, "sbp_pct_diff"),
+        ({"type": "events_so_far", "options": {"col": "fell"}}, "fell_count"),
+        ({"type": "time_since", "options": {"col": "fell"}}, "time_since_fell"),
+        ({"type": "time_since", "options": {"col": "fell", "which": "first"}}, "time_since_first_fell"),
+        ({"type": "carry_forward", "options": {"col": "sbp", "flag": True}}, "sbp_filled"),
+        ({"type": "rolling", "options": {"col": "sbp", "span": "30D"}}, "sbp_mean_30D"),
+        ({"type": "rolling", "options": {"col": "sbp", "stat": "max", "span": 2.5}}, "sbp_max_2.5"),
+        ({"type": "lag", "options": {"col": "sbp", "offset": 7, "name": None}}, "sbp_lag_7"),
+        ({"type": "lag", "options": {"col": "sbp", "offset": "14D"}}, "sbp_lag_14D"),
+        ({"type": "lag", "options": {"col": "sbp"}}, "sbp_lag1"),
+        ({"type": "within_between", "options": {"col": "sbp", "level": "baseline"}}, "sbp_between"),
+    ]
+    text = json.dumps({"format": FORMAT, "version": 1, "panel": {"id": "pid", "time": "day"},
+                       "transforms": [entry for entry, _ in old]})
+    d = Derivation.from_json(text)
+    assert [tr.outputs()[0] for tr in d.transforms] == [name for _, name in old]
+    assert d.transforms[5].outputs() == ("sbp_filled", "sbp_filled_flag")
+    assert d.transforms[-1] == pfx.within_between("sbp", "baseline")
+    assert d.transforms[-2] == pfx.lag("sbp")  # unchanged default: no name pinned
+    assert json.loads(d.to_json())["version"] == VERSION == 2  # saved again as version 2

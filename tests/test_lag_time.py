@@ -44,17 +44,17 @@ def test_datetimes_keep_dtype_and_row_order():
               pfx.lag("arm", offset="30D", tolerance="15D", name="tol15"))
     # 2024-03-01 - 30 days = 2024-01-31: the latest occasion at or before it is 2024-01-20 ("b"),
     # 11 days older than the target: kept with 15 days' tolerance, dropped with 5
-    assert out["arm_lag_30D"].isna().tolist() == [False, True, True, True]
-    assert out.loc["w", "arm_lag_30D"] == "b" and out.loc["w", "tol15"] == "b"
+    assert out["arm_lag_30d"].isna().tolist() == [False, True, True, True]
+    assert out.loc["w", "arm_lag_30d"] == "b" and out.loc["w", "tol15"] == "b"
     assert out["tol5"].isna().all() and out["tol15"].isna().tolist() == [False, True, True, True]
-    assert out["arm_lag_30D"].dtype == df["arm"].dtype
+    assert out["arm_lag_30d"].dtype == df["arm"].dtype
     assert list(out.index) == ["w", "x", "y", "z"]
 
 
 def test_tolerance_as_timedelta_is_stored_as_text():
     tr = pfx.lag("y", offset=pd.Timedelta(days=14), tolerance=pd.Timedelta(hours=36))
     assert (tr.offset, tr.tolerance, tr.periods) == ("14D", "36h", None)
-    assert tr.outputs() == ("y_lag_14D",)
+    assert tr.outputs() == ("y_lag_14d",)
     assert Lag(**tr.options()) == tr
     assert tr.past_only and "older than the target" in tr.describe()
 

@@ -149,7 +149,7 @@ def test_datetime_ninety_days_by_hand():
     df = one_subject(pd.to_datetime(["2024-01-01", "2024-03-01", "2024-03-31"]), [10.0, 20.0, 60.0])
     out = run(df, pfx.rolling("y", span="90D"),
               pfx.rolling("y", span=dt.timedelta(days=60), closed="both", name="d60"))
-    np.testing.assert_array_equal(col(out, "y_mean_90D"), [10, 15, 40])  # 1 Jan is out on 31 Mar
+    np.testing.assert_array_equal(col(out, "y_mean_90d"), [10, 15, 40])  # 1 Jan is out on 31 Mar
     np.testing.assert_array_equal(col(out, "d60"), [10, 15, 40])  # [t - 60D, t] keeps 1 Mar
 
 
@@ -175,7 +175,7 @@ def test_timedelta_times_by_hand():
     df = one_subject(pd.to_timedelta([0, 6, 12, 30], unit="h"), [1.0, 2.0, 3.0, 4.0])
     out = run(df, pfx.rolling("y", "sum", span="12h"), pfx.rolling("y", "max", span="1D", closed="both"))
     np.testing.assert_array_equal(col(out, "y_sum_12h"), [1, 3, 5, 4])
-    np.testing.assert_array_equal(col(out, "y_max_1D"), [1, 2, 3, 4])
+    np.testing.assert_array_equal(col(out, "y_max_1d"), [1, 2, 3, 4])
 
 
 def test_caller_order_index_and_subjects_kept():
@@ -337,8 +337,8 @@ def test_leaving_out_the_current_occasion_is_a_window_of_the_lag(case, k, stat):
 # ---------------------------------------------------------------------------- options
 def test_default_names():
     assert pfx.rolling("sbp", span=90).outputs() == ("sbp_mean_90",)
-    assert pfx.rolling("sbp", span=2.5).outputs() == ("sbp_mean_2.5",)
-    assert pfx.rolling("sbp", span="90D").outputs() == ("sbp_mean_90D",)
+    assert pfx.rolling("sbp", span=2.5).outputs() == ("sbp_mean_2p5",)
+    assert pfx.rolling("sbp", span="90D").outputs() == ("sbp_mean_90d",)
     assert pfx.rolling("sbp", "median", span=pd.Timedelta(hours=36)).outputs() == ("sbp_median_36h",)
     assert pfx.rolling("sbp", occasions=3).outputs() == ("sbp_mean_3occ",)
     assert pfx.rolling("sbp", "max").outputs() == ("sbp_max_sofar",)

@@ -164,11 +164,11 @@ def test_where_on_the_other_transforms():
                      pfx.time_since("ev", where="post"), id="pid", time="day")
     assert out["y_baseline"].tolist() == [1.0] * 4
     # the 9.0 at day 0 is no source: missing there (nothing earlier qualifies), own values after
-    np.testing.assert_array_equal(out["y_filled"], [np.nan, 1.0, 7.0, 2.0])
+    np.testing.assert_array_equal(out["y_locf"], [np.nan, 1.0, 7.0, 2.0])
     np.testing.assert_array_equal(out["y_max_sofar"], [np.nan, 1.0, 7.0, 7.0])
     assert out["y_cum"].tolist() == [0.0, 1.0, 8.0, 10.0]
-    assert out["ev_count"].tolist() == [0, 0, 1, 2]
-    np.testing.assert_array_equal(out["time_since_ev"], [np.nan, np.nan, 0.0, 0.0])
+    assert out["ev_events"].tolist() == [0, 0, 1, 2]
+    np.testing.assert_array_equal(out["ev_time_since"], [np.nan, np.nan, 0.0, 0.0])
 
 
 def test_event_flags_are_strict_unless_asked():
@@ -176,9 +176,9 @@ def test_event_flags_are_strict_unless_asked():
     with pytest.raises(ColumnTypeError, match=r"booleans or 0/1.*bili.*> 0.*any_nonzero") as err:
         pfx.derive(df, pfx.time_since("bili"), id="pid", time="day")
     assert err.value.column == "bili" and err.value.count == 2
-    assert pfx.derive(df, pfx.events_so_far("ev01"), id="pid", time="day")["ev01_count"].tolist() == [0, 1, 2]
+    assert pfx.derive(df, pfx.events_so_far("ev01"), id="pid", time="day")["ev01_events"].tolist() == [0, 1, 2]
     out = pfx.derive(df, pfx.events_so_far("bili", any_nonzero=True), id="pid", time="day")
-    assert out["bili_count"].tolist() == [1, 2, 2]
+    assert out["bili_events"].tolist() == [1, 2, 2]
 
 
 # ---------------------------------------------------------------------- units and index levels
@@ -188,7 +188,7 @@ def test_numeric_days_with_a_declared_unit():
                      id="pid", time="day", time_unit="D", unit="W")
     assert out["gap"].tolist()[1:] == [2.0, 31 / 7]
     assert out["y_rate"].iloc[1] == pytest.approx(0.5)  # +1 over 2 weeks
-    assert out["y_count_30D"].tolist() == [1, 2, 1]
+    assert out["y_count_30d"].tolist() == [1, 2, 1]
     with pytest.raises(pfx.OptionError, match="time_unit="):
         pfx.derive(df, pfx.gap(), id="pid", time="day", unit="W")
 

@@ -59,14 +59,14 @@ def test_imputation_on_the_grid_is_flagged():
     grid = pfx.visit_grid(lab(), W, id="pid", time="ady", pick=NEAREST, until="eos")
     out = pfx.derive(grid, pfx.carry_forward("alt", flag=True), pfx.carry_baseline("alt", flag=True),
                      pfx.carry_worst("alt", "max", flag=True), id="pid", time="visit_number")
-    np.testing.assert_array_equal(out["alt_filled"], [22, 22, 22, 30, 38, 38, 35, 18])
-    assert out["alt_filled_flag"].tolist() == [np.nan, "LOCF", "LOCF", np.nan, np.nan, "LOCF", np.nan, np.nan]
+    np.testing.assert_array_equal(out["alt_locf"], [22, 22, 22, 30, 38, 38, 35, 18])
+    assert out["alt_locf_flag"].tolist() == [np.nan, "LOCF", "LOCF", np.nan, np.nan, "LOCF", np.nan, np.nan]
     np.testing.assert_array_equal(out["alt_bocf"], [22, 22, 22, 30, 38, 30, 35, 18])
     assert out["alt_bocf_flag"].tolist() == [np.nan, "BOCF", "BOCF", np.nan, np.nan, "BOCF", np.nan, np.nan]
     np.testing.assert_array_equal(out["alt_wocf"], [22, 22, 22, 30, 38, 38, 35, 18])
     assert out["alt_wocf_flag"].notna().tolist() == [False, True, True, False, False, True, False, False]
     # every filled value is flagged, and only those
-    for col in ("alt_filled", "alt_bocf", "alt_wocf"):
+    for col in ("alt_locf", "alt_bocf", "alt_wocf"):
         filled = out["alt"].isna() & out[col].notna()
         assert (out[f"{col}_flag"].notna() == filled).all()
 

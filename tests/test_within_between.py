@@ -55,10 +55,10 @@ def test_names_and_options():
 # ---------------------------------------------------------------------------- reference
 @settings(max_examples=100, deadline=None)
 @given(case=panels(time_kinds=ALL_TIME_KINDS, value_kinds=VALUE_KINDS), col_=st.sampled_from(["y", "x", "dose"]),
-       level=st.sampled_from(["mean", "baseline"]))
-def test_matches_reference(case, col_, level):
+       between=st.sampled_from(["mean", "baseline"]))
+def test_matches_reference(case, col_, between):
     """Both outputs equal the per-subject loop reference."""
-    tr = pfx.within_between(col_, level)
+    tr = pfx.within_between(col_, between)
     got = pfx.derive(case.frame, tr, **case.keys)
     want = reference(case.frame, tr, **case.keys)
     assert_matches_reference(got, want, list(tr.outputs()), rtol=1e-12, atol=1e-9)
@@ -80,7 +80,7 @@ def test_parts_add_up(case):
 
 # ---------------------------------------------------------------------------- errors
 @pytest.mark.parametrize("make, words", [
-    (lambda: pfx.within_between("y", "median"), "level must be one of"),
+    (lambda: pfx.within_between("y", "median"), "between must be one of"),
     (lambda: pfx.within_between("y", names=["a"]), "names must be two different column names"),
     (lambda: pfx.within_between("y", names="ab"), "names must be two different column names"),
     (lambda: pfx.within_between("y", names=["a", "a"]), "names must be two different column names"),

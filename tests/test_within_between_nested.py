@@ -146,7 +146,7 @@ def test_names_options_and_saved_derivations():
                         ({"fit": "y"}, "fit 'y' must be"),
                         ({"fit": ""}, "fit must be a column name"),
                         ({"codes": "global"}, "codes must be one of"),
-                        ({"level": "baseline", "levels": ["clinic"]}, "level='mean'")]:
+                        ({"between": "baseline", "levels": ["clinic"]}, "between='mean'")]:
         with pytest.raises(OptionError, match=message):
             pfx.within_between("y", **kw)
     df = nested(3)

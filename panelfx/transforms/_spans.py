@@ -66,7 +66,9 @@ def span_words(value: str | int | float) -> str:
 
 
 def span_label(value: str | int | float) -> str:
-    """A span as part of a column name: '30D', '7', '2.5'."""
-    if isinstance(value, str):
-        return value.replace(" ", "")
-    return f"{value:g}"
+    """A span or number as part of a formula-safe, case-normalised column name: '30D' -> '30d',
+    2.5 -> '2p5', so names are Python identifiers (model formulas) and '90D' and '90d' name one
+    window once (case-insensitive stores)."""
+    text = value.replace(" ", "") if isinstance(value, str) else f"{value:g}"
+    text = text.lower().replace(".", "p").replace("-", "m").replace("+", "")
+    return "".join(ch if ch.isalnum() or ch == "_" else "_" for ch in text)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 from .._columns import Take
 from .._options import checked_options
@@ -52,7 +52,7 @@ class Baseline(Transform):
 @checked_options
 def baseline(
     col: str,
-    rule: str = "first_valid",
+    rule: Literal["first_valid", "first", "last_before"] = "first_valid",
     *,
     reference: str | float | None = None,
     where: str | None = None,

@@ -44,7 +44,7 @@ class CarryForward(Transform):
         return with_where((self.col,), self.where)
 
     def outputs(self) -> tuple[str, ...]:
-        out = self.name or f"{self.col}_filled"
+        out = self.name or f"{self.col}_locf"
         return (out, f"{out}_flag") if self.flag else (out,)
 
     @property
@@ -101,7 +101,7 @@ def carry_forward(
 
     Missing values: missing before the subject's first non-missing value and beyond the
     limits.  Never carried from one subject to the next.  Works on any dtype (numbers,
-    text, categories) and keeps it.  Past-only.  Default name: ``<col>_filled``.
+    text, categories) and keeps it.  Past-only.  Default name: ``<col>_locf`` (last observation carried forward).
 
     ``flag=True`` adds ``<name>_flag``, a categorical holding "LOCF" (last observation
     carried forward) where the value was carried and missing elsewhere, so that filled
@@ -113,7 +113,7 @@ def carry_forward(
     ...                    "bmi": [None, 27.1, None, None, 31.0]})
     >>> pfx.derive(df, pfx.carry_forward("bmi"), pfx.carry_forward("bmi", max_span=90, name="bmi_90"),
     ...           id="pid", time="day")
-       pid  day   bmi  bmi_filled  bmi_90
+       pid  day   bmi  bmi_locf  bmi_90
     0    1    0   NaN         NaN     NaN
     1    1   30  27.1        27.1    27.1
     2    1   60   NaN        27.1    27.1

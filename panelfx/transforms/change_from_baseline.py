@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -14,7 +14,7 @@ from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ._common import baseline_index, check_rule, difference, reference_columns, relative_change, rule_words
 
-KINDS = {"difference": "change", "percent": "pct_change", "ratio": "ratio"}
+KINDS = {"difference": "change", "percent": "percent_change", "ratio": "ratio"}
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -70,9 +70,9 @@ class ChangeFromBaseline(Transform):
 @checked_options
 def change_from_baseline(
     col: str,
-    kind: str = "difference",
+    kind: Literal["difference", "percent", "ratio"] = "difference",
     *,
-    rule: str = "first_valid",
+    rule: Literal["first_valid", "first", "last_before"] = "first_valid",
     reference: str | float | None = None,
     after_baseline_only: bool = False,
     name: str | None = None,
@@ -87,14 +87,14 @@ def change_from_baseline(
     occasion itself has difference 0; ``after_baseline_only=True`` leaves the occasions up
     to and including the baseline missing, as post-baseline analyses (and ADaM's blank
     change on the baseline record) want.  Not past-only.  Default names:
-    ``<col>_change``, ``<col>_pct_change``, ``<col>_ratio``.
+    ``<col>_change``, ``<col>_percent_change``, ``<col>_ratio``.
 
     >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 2, 2], "day": [0, 30, 60, 0, 30],
     ...                    "score": [12, 6, 2, 0, 4]})
     >>> pfx.derive(df, pfx.change_from_baseline("score"),
     ...           pfx.change_from_baseline("score", "percent"), id="pid", time="day")
-       pid  day  score  score_change  score_pct_change
+       pid  day  score  score_change  score_percent_change
     0    1    0     12           0.0          0.000000
     1    1   30      6          -6.0        -50.000000
     2    1   60      2         -10.0        -83.333333

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -14,7 +14,7 @@ from .._panel import Panel
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ._common import difference, relative_change
 
-KINDS = {"difference": "diff", "percent": "pct_diff", "rate": "rate"}
+KINDS = {"difference": "diff", "percent": "percent_diff", "rate": "rate"}
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -76,7 +76,7 @@ class ChangeFromPrevious(Transform):
 @checked_options
 def change_from_previous(
     col: str,
-    kind: str = "difference",
+    kind: Literal["difference", "percent", "rate"] = "difference",
     *,
     skip_missing: bool = False,
     name: str | None = None,
@@ -91,7 +91,7 @@ def change_from_previous(
     so a missing value makes the next change missing too; ``skip_missing=True`` uses the
     last earlier occasion that has a value instead (and its time, for rates).  Missing on
     the subject's first occasion; percent also where the previous value is 0.  Past-only.
-    Default names: ``<col>_diff``, ``<col>_pct_diff``, ``<col>_rate``.
+    Default names: ``<col>_diff``, ``<col>_percent_diff``, ``<col>_rate``.
 
     >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1], "day": [0, 10, 20, 40],

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -115,10 +115,10 @@ class Cumulative(Transform):
 @checked_options
 def cumulative(
     col: str,
-    method: str = "sum",
+    method: Literal["sum", "step", "trapezoid"] = "sum",
     *,
     restart_after: str | float | None = None,
-    missing: str = "skip",
+    missing: Literal["skip", "propagate"] = "skip",
     where: str | None = None,
     name: str | None = None,
 ) -> Cumulative:

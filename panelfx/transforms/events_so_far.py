@@ -18,7 +18,7 @@ class EventsSoFar(FlagHistory):
     type_name = "events_so_far"
 
     def outputs(self) -> tuple[str, ...]:
-        return (self.name or f"{self.col}_count",)
+        return (self.name or f"{self.col}_events",)
 
     def describe(self) -> str:
         return (f"number of the subject's occasions {self._when()} the current one at which {self.col!r} is true "
@@ -36,14 +36,14 @@ def events_so_far(col: str, *, include_current: bool = True, any_nonzero: bool =
     ``col`` is a true/false column (booleans, or numbers where 0 is false and any other
     number true).  ``include_current=False`` counts only strictly earlier occasions
     ("number of prior events").  Missing values: a missing flag is not an event, so the
-    count is never missing.  Past-only.  Output int64.  Default name: ``<col>_count``.
+    count is never missing.  Past-only.  Output int64.  Default name: ``<col>_events``.
 
     >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "wk": [1, 2, 3, 4, 1],
     ...                    "admitted": [1, 0, None, 1, 0]})
     >>> pfx.derive(df, pfx.events_so_far("admitted"),
     ...           pfx.events_so_far("admitted", include_current=False, name="prior"), id="pid", time="wk")
-       pid  wk  admitted  admitted_count  prior
+       pid  wk  admitted  admitted_events  prior
     0    1   1       1.0               1      0
     1    1   2       0.0               1      1
     2    1   3       NaN               1      1

@@ -13,11 +13,11 @@ from .. import _kernels as K
 from .._options import checked_options
 from .._panel import Panel
 from .._subjects import Subjects
-from .._tables import SideView, TableUse, check_table_name, day_ticks, float_key, safe_label
+from .._tables import SideView, TableUse, check_table_name, day_ticks, float_key
 from .._time import INT_MAX, decimal_scale
 from .._transform import Transform, check_bool, check_choice, check_column_name, check_name
 from ..errors import IntervalError, NullKeyError, OptionError, TiedRecordsError, rows_message
-from ._spans import check_span, span_words
+from ._spans import check_span, span_label, span_words
 from .as_of import _plus_one
 
 STATS = ("cumulative", "current", "days_on", "on_treatment", "intensity")
@@ -84,7 +84,7 @@ class Exposure(Transform):
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
-        lag = f"_lag{safe_label(self.lag)}" if self.lag is not None else ""
+        lag = f"_lag{span_label(self.lag)}" if self.lag is not None else ""
         return (f"{self.dose or self.table}_{self.stat}{lag}",)
 
     @property

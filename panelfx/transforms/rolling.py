@@ -5,7 +5,7 @@ from __future__ import annotations
 import dataclasses
 import datetime as _dt
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -157,11 +157,11 @@ class Rolling(Transform):
 @checked_options
 def rolling(
     col: str,
-    stat: str = "mean",
+    stat: Literal["mean", "sum", "count", "min", "max", "std", "var", "median"] = "mean",
     *,
     occasions: int | None = None,
     span: float | int | str | _dt.timedelta | None = None,
-    closed: str = "right",
+    closed: Literal["right", "both", "left", "neither"] = "right",
     min_valid: int = 1,
     exclude_current: bool = False,
     where: str | None = None,

@@ -11,10 +11,10 @@ import numpy as np
 from .. import _windows as W
 from .._options import checked_options
 from .._panel import Panel
-from .._tables import Flags, TableUse, check_table_name, safe_label
+from .._tables import Flags, TableUse, check_table_name
 from .._transform import Transform, check_choice, check_column_name, check_int, check_name
 from ..errors import OptionError
-from ._spans import check_span
+from ._spans import check_span, span_label
 from .as_of import _plus_one
 
 STATS = ("count", "sum", "mean", "min", "max", "any")
@@ -62,7 +62,7 @@ class TableWindow(Transform):
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
-        window = "sofar" if self.span is None else safe_label(self.span)
+        window = "sofar" if self.span is None else span_label(self.span)
         prior = "_prior" if self.closed in ("left", "neither") else ""
         return (f"{self.col or self.table}_{self.stat}_{window}{prior}",)
 

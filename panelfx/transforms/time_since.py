@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -31,7 +31,7 @@ class TimeSince(FlagHistory):
     def outputs(self) -> tuple[str, ...]:
         if self.name:
             return (self.name,)
-        return (f"time_since_{self.col}" if self.which == "last" else f"time_since_first_{self.col}",)
+        return (f"{self.col}_time_since" if self.which == "last" else f"{self.col}_time_since_first",)
 
     def describe(self) -> str:
         which = "most recent" if self.which == "last" else "first"
@@ -61,7 +61,7 @@ class TimeSince(FlagHistory):
 @checked_options
 def time_since(
     col: str,
-    which: str = "last",
+    which: Literal["last", "first"] = "last",
     *,
     include_current: bool = True,
     any_nonzero: bool = False,
@@ -83,15 +83,15 @@ def time_since(
     ``where`` (a true/false column): only events at occasions where it is true count.
 
     Missing values: a missing flag is not an event; the result is missing before the
-    subject's first (counted) event.  Past-only.  Default names: ``time_since_<col>``,
-    ``time_since_first_<col>``.
+    subject's first (counted) event.  Past-only.  Default names: ``<col>_time_since``,
+    ``<col>_time_since_first``.
 
     >>> import pandas as pd, panelfx as pfx
     >>> df = pd.DataFrame({"pid": [1, 1, 1, 1, 2], "day": [0, 3, 10, 12, 0],
     ...                    "fall": [False, True, False, True, True]})
     >>> pfx.derive(df, pfx.time_since("fall"), pfx.time_since("fall", "first"),
     ...           pfx.time_since("fall", include_current=False, name="since_prior"), id="pid", time="day")
-       pid  day   fall  time_since_fall  time_since_first_fall  since_prior
+       pid  day   fall  fall_time_since  fall_time_since_first  since_prior
     0    1    0  False              NaN                    NaN          NaN
     1    1    3   True              0.0                    0.0          NaN
     2    1   10  False              7.0                    7.0          7.0

@@ -6,7 +6,7 @@ from __future__ import annotations
 import dataclasses
 import re
 from collections.abc import Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
@@ -18,7 +18,10 @@ from .._panel import Panel
 from .._transform import Transform, check_choice, check_column_name
 from ..errors import NestingError, OptionError, rows_message
 
-LEVELS = ("mean", "baseline")
+BETWEEN = ("mean", "baseline")
+
+Between = Literal["mean", "baseline"]
+Codes = Literal["within_parent", "unique"]
 
 
 def _safe(name: str) -> str:
@@ -32,7 +35,7 @@ class WithinBetween(Transform):
 
     type_name = "within_between"
     col: str
-    level: str = "mean"
+    between: str = "mean"
     names: tuple[str, ...] | None = None
     levels: tuple[str, ...] = ()
     fit: str | None = None
@@ -40,7 +43,7 @@ class WithinBetween(Transform):
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
-        check_choice("level", self.level, LEVELS)
+        check_choice("between", self.between, BETWEEN)
         levels = tuple(check_levels(self.levels, allow_empty=True))
         object.__setattr__(self, "levels", levels)  # a saved derivation may hand back a list
         if self.col in levels:
@@ -50,8 +53,8 @@ class WithinBetween(Transform):
             if self.fit == self.col or self.fit in levels:
                 raise OptionError(f"fit {self.fit!r} must be a true/false column other than col and the levels")
         check_choice("codes", self.codes, CODES)
-        if self.level == "baseline" and (levels or self.fit is not None):
-            raise OptionError("levels= and fit= work with subject means: use them with level='mean'")
+        if self.between == "baseline" and (levels or self.fit is not None):
+            raise OptionError("levels= and fit= work with subject means: use them with between='mean'")
         defaults = (*(f"{self.col}_{_safe(c)}" for c in levels), f"{self.col}_between", f"{self.col}_within")
         if self.names is not None:
             names = self.names
@@ -80,7 +83,7 @@ class WithinBetween(Transform):
         return False
 
     def describe(self) -> str:
-        if self.level == "baseline":
+        if self.between == "baseline":
             return (f"{self.col!r} split into the subject-level part (the subject's first non-missing value "
                     f"(baseline)) and the within-subject deviation from it")
         rows = f" over the rows where {self.fit!r} is true" if self.fit is not None else ""
@@ -97,7 +100,7 @@ class WithinBetween(Transform):
         y = panel.columns.numeric(self.col)
         valid = ~np.isnan(y)
         if not self.levels and self.fit is None:
-            if self.level == "baseline":
+            if self.between == "baseline":
                 level = K.take(y, K.first_index(s, valid))
             else:
                 count = s.reduce(np.add, valid.astype("float64"))
@@ -163,19 +166,19 @@ def _means(y: np.ndarray, use: np.ndarray, code: np.ndarray, k: int) -> np.ndarr
 @checked_options
 def within_between(
     col: str,
-    level: str = "mean",
+    between: Between = "mean",
     *,
     names: Sequence[str] | None = None,
     levels: Sequence[str] = (),
     fit: str | None = None,
-    codes: str = "within_parent",
+    codes: Codes = "within_parent",
 ) -> WithinBetween:
     """Split ``col`` into a subject-level part and the within-subject deviation from it.
 
     Two outputs: the subject-level ("between") part on every row of the subject, and the
-    deviation y - part ("within").  ``level="mean"`` (default) uses the subject's mean
+    deviation y - part ("within").  ``between="mean"`` (default) uses the subject's mean
     over its non-missing values: the centring behind fixed-effects ("within") estimates
-    and the between/within split of covariates in mixed models.  ``level="baseline"``
+    and the between/within split of covariates in mixed models.  ``between="baseline"``
     uses the subject's first non-missing value instead.
 
     **Nested levels.**  ``levels=["region", "clinic"]`` (outermost first) names the levels
@@ -228,5 +231,5 @@ def within_between(
     4      B    1  12.0      12.0       -1.0       1.0
     5      B    2  14.0      12.0        2.0       0.0
     """
-    return WithinBetween(col=col, level=level, names=names, levels=levels, fit=fit,  # type: ignore[arg-type]
+    return WithinBetween(col=col, between=between, names=names, levels=levels, fit=fit,  # type: ignore[arg-type]
                          codes=codes)

@@ -39,7 +39,7 @@ def within_between(tr: Any, s: Subject) -> list[list[Any]]:
         present = [v for v in y if not math.isnan(v)]
         if not present:
             level = math.nan
-        elif tr.level == "mean":
+        elif tr.between == "mean":
             level = math.fsum(present) / len(present)
         else:
             level = present[0]
