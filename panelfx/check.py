@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._check_visits import planned_findings, window_findings
+from ._frames import frames
 from ._interval_check import interval_findings
 from ._panel import Panel, as_id_list, require_columns, time_kind
 from .errors import OptionError
@@ -32,6 +33,7 @@ PROBLEMS = {
 }
 
 
+@frames(struct_names=lambda a: {"id": as_id_list(a["id"])})
 def check(
     frame: pd.DataFrame,
     *,

@@ -8,6 +8,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._panel import Panel, key_column
 from .errors import ColumnExistsError, ConflictingTiesError, OptionError, rows_message
 
@@ -19,6 +20,7 @@ COUNT_COLUMN = "rows_combined"
 LABELS_COLUMN = "source_rows"
 
 
+@frames()
 def collapse_ties(
     frame: pd.DataFrame,
     *,

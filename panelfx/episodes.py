@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from ._clock import Clock, last_at_or_before
+from ._frames import frames
 from ._panel import Panel, as_id_list, require_columns
 from ._side import SideRows, side_rows, side_time_column
 from ._transform import check_bool, check_choice
@@ -46,6 +47,7 @@ OUTPUT_COLUMNS = ("start", "stop", "event", "gap_start", "gap_stop", "episode", 
 _BAND_KEYS = ("since", "at_entry", "bands", "unit", "name")
 
 
+@frames(tables="tables", also=("events",))
 def episodes(
     frame: pd.DataFrame,
     *,

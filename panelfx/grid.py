@@ -10,6 +10,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._panel import Panel, require_columns
 from ._time import decimal_scale, exact_number
 from ._transform import check_bool, check_choice
@@ -24,6 +25,7 @@ Shape = Literal["long", "wide"]
 MAX_POINTS = 100_000
 
 
+@frames()
 def grid(
     frame: pd.DataFrame,
     col: str | Sequence[str],

@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._panel import require_columns
 from ._poisson import poisson_limits
 from ._time import UNITS_NS, _datetimes, _timedeltas, time_kind
@@ -19,6 +20,7 @@ __all__ = ["person_time", "RATE_COLUMNS"]
 RATE_COLUMNS = ("events", "person_time", "rate", "rate_lower", "rate_upper")
 
 
+@frames(frame="episodes")
 def person_time(
     episodes: pd.DataFrame,
     by: str | Sequence[str] = (),

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._clock import Clock, last_at_or_before
+from ._frames import frames
 from ._panel import Panel, as_id_list, require_columns
 from ._tables import SideTable
 from ._transform import Transform
@@ -19,6 +20,7 @@ from .errors import ColumnExistsError, NotConstantError, OptionError, rows_messa
 __all__ = ["snapshot"]
 
 
+@frames(tables="tables")
 def snapshot(
     frame: pd.DataFrame,
     steps: Derivation | Transform | Sequence[Transform],

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from . import _kernels as K
+from ._frames import frames
 from ._panel import Panel, require_columns
 from .errors import ColumnExistsError, NotConstantError, OptionError, rows_message
 
@@ -22,6 +23,7 @@ EXTRA_STATS = ("min", "max", "time_of_min", "time_of_max", "auc_from", "time_abo
 NEEDS = {"auc_from": "area_from", "time_above": "threshold", "time_below": "threshold", "last_before": "before"}
 
 
+@frames()
 def subject_summary(
     frame: pd.DataFrame,
     cols: str | Sequence[str],

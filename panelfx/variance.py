@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import to_float
+from ._frames import frames
 from ._nesting import CODES, Codes, check_levels, compact, level_codes, parents
 from ._panel import require_columns
 from ._transform import check_choice
@@ -27,6 +28,7 @@ Method = Literal["anova", "reml"]
 TABLE_COLUMNS = ("level", "units", "mean_size", "df", "sum_sq", "mean_sq", "variance", "negative", "share", "icc")
 
 
+@frames()
 def variance_components(
     frame: pd.DataFrame,
     col: str,

@@ -10,6 +10,7 @@ import pandas as pd
 
 from . import _visits as V
 from ._columns import EXACT_FLOAT_INT
+from ._frames import frames
 from ._panel import Panel
 from .errors import ColumnExistsError, OptionError
 from .transforms.analysis_visit import day_values
@@ -21,6 +22,7 @@ from .visit_windows import windows as make_windows
 RECORD_STATES = ["picked", "no value", "missed"]
 
 
+@frames()
 def visit_grid(
     frame: pd.DataFrame,
     windows: Windows | Sequence[Sequence[Any]],
