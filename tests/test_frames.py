@@ -309,3 +309,14 @@ def test_property_polars_and_table_equal_pandas(seed, n):
         back = pfx.to_pandas(pfx.derive(maker(raw), *steps(), id="pid", time="day"))
         for col in OUTPUTS:
             assert pylist(back[col]) == pylist(want[col]), col
+
+
+def test_testing_kit_takes_polars_and_arrow():
+    """assert_past_only cuts a polars or pyarrow frame as it cuts the pandas one."""
+    from panelfx.testing import assert_past_only
+
+    raw = invented_panel()
+    for maker in (as_polars, as_table):
+        assert_past_only(maker(raw), pfx.lag("litres", name="litres_prev"), id="pid", time="day")
+        with pytest.raises(AssertionError):
+            assert_past_only(maker(raw), pfx.lag("litres", -1, name="litres_next"), id="pid", time="day")
