@@ -146,8 +146,6 @@ def _arrow_array(s: pd.Series, name: str, struct_names: Mapping[str, Sequence[st
     except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
         pass
     kind = pd.api.types.infer_dtype(s, skipna=True)
-    if kind in ("mixed-integer-float", "integer", "floating", "decimal"):
-        return pa.array(pd.to_numeric(s).astype(np.float64), from_pandas=True)
     values = s.to_numpy(dtype=object)
     present = values[s.notna().to_numpy()] if len(values) else values
     if len(present) and all(isinstance(v, tuple) for v in present):  # several id columns: a struct per row

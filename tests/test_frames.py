@@ -320,3 +320,33 @@ def test_testing_kit_takes_polars_and_arrow():
         assert_past_only(maker(raw), pfx.lag("litres", name="litres_prev"), id="pid", time="day")
         with pytest.raises(AssertionError):
             assert_past_only(maker(raw), pfx.lag("litres", -1, name="litres_next"), id="pid", time="day")
+
+
+def test_to_pandas_is_exact_and_keeps_categories():
+    """Integers with missing values stay exact integers (Arrow-backed, not floats), polars
+    categoricals and enums become pandas Categoricals (pyarrow's dictionary conversion), and a
+    polars categorical id works as a pandas one."""
+    big = 2**53 + 1
+    frame = pl.DataFrame({"pid": pl.Series(["b", "a", "b"], dtype=pl.Categorical), "day": [0, 0, 5],
+                          "count": [big, None, big + 2]})
+    back = pfx.to_pandas(frame)
+    assert back["count"].dtype == "int64[pyarrow]" and back["count"].tolist()[::2] == [big, big + 2]
+    assert isinstance(back["pid"].dtype, pd.CategoricalDtype)
+    out = pfx.derive(frame, pfx.lag("count", name="count_prev"), id="pid", time="day")
+    assert out["count_prev"].to_list() == [None, None, big]
+    assert out["pid"].dtype == pl.Categorical  # the caller's own column, as it came
+
+
+def test_objects_arrow_cannot_type_are_a_typed_error():
+    """A result column of mixed Python objects has no Arrow type: a ColumnTypeError naming it
+    (tuples of one width become a struct)."""
+    from panelfx._frames import read_frame
+
+    incoming = read_frame(pa.table({"pid": [1, 2]}))
+    odd = pd.DataFrame({"pid": [1, 2], "what": pd.Series(["a", 1], dtype=object)})
+    with pytest.raises(pfx.ColumnTypeError, match="column 'what' holds mixed-integer values") as err:
+        incoming.back(odd)
+    assert err.value.column == "what"
+    pairs = pd.DataFrame({"pair": pd.Series([("a", 1), None], dtype=object)})
+    assert incoming.back(pairs, {"pair": ["site", "pid"]}).column("pair").to_pylist() == [
+        {"site": "a", "pid": 1}, None]
