@@ -14,6 +14,7 @@ Declare the panel once (``id``, ``time``), pass transforms, get a tidy frame bac
 from __future__ import annotations
 
 from . import accessor as _accessor  # noqa: F401  (imported for its effect: registers DataFrame.pfx)
+from ._frames import to_pandas
 from ._transform import Transform
 from .check import check
 from .collapse import collapse_ties
@@ -26,6 +27,7 @@ from .errors import (
     ConflictingTiesError,
     DuplicateOccasionError,
     FollowUpError,
+    FrameTypeError,
     IntervalError,
     MissingColumnError,
     MissingTableError,
@@ -140,6 +142,9 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "FrameTypeError",
+    # frames from other libraries
+    "to_pandas",
 ]
 
 

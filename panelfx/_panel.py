@@ -23,6 +23,7 @@ import pandas as pd
 
 from . import _kernels as K
 from ._columns import Columns, to_float
+from ._frames import not_a_frame
 from ._order import Ordering, order_rows
 from ._subjects import Subjects
 from ._time import NAT, UNITS_NS, TimeAxis, time_kind
@@ -96,8 +97,8 @@ class Panel:
         time_unit: str | None = None,
         strict: bool = True,
     ) -> None:
-        if not isinstance(frame, pd.DataFrame):
-            raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
+        if not isinstance(frame, pd.DataFrame):  # public functions read other frames at the edge (_frames.py)
+            raise not_a_frame(frame)
         self.id_cols = as_id_list(id)
         if not isinstance(time, str):
             raise OptionError(f"time must be a column name, got {time!r}")

@@ -39,6 +39,7 @@ import pandas as pd
 
 from . import _kernels as K
 from ._columns import EXACT_FLOAT_INT, Columns, Deferred
+from ._frames import not_a_frame
 from ._order import Ordering, _sort
 from ._subjects import Subjects
 from ._time import INT_MAX, NAT, UNITS_NS, TimeAxis, _rescale_floor
@@ -141,7 +142,7 @@ class SideTable:
 
     def __init__(self, name: str, frame: Any, panel: Panel) -> None:
         if not isinstance(frame, pd.DataFrame):
-            raise TypeError(f"side table {name!r} must be a pandas DataFrame, got {type(frame).__name__}")
+            raise not_a_frame(frame, f"side table {name!r}")
         self.name = name
         self.frame = frame
         self.panel = panel

@@ -84,14 +84,31 @@ def time_kind(series: pd.Series, what: str = "time column") -> str:
             return "timedelta"
     elif dtype == object and pd.api.types.infer_dtype(series, skipna=True) in ("date", "datetime"):
         return "datetime"
-    hint = ""
-    if pd.api.types.is_string_dtype(dtype) or dtype == object:
-        hint = " Text dates must be parsed first, e.g. frame[col] = pd.to_datetime(frame[col])."
     raise TimeTypeError(
-        f"{what} {series.name!r} has dtype {dtype}: it must hold numbers or datetimes.{hint}",
+        f"{what} {series.name!r} has dtype {dtype}: it must hold numbers or datetimes.{_time_hint(series)}",
         column=str(series.name),
         count=len(series),
     )
+
+
+def _time_hint(series: pd.Series) -> str:
+    """What to do with a column that holds no times: parse text, convert numbers held as
+    objects, or (mixed objects) what is there.  Error path only."""
+    dtype = series.dtype
+    inferred = pd.api.types.infer_dtype(series, skipna=True) if dtype == object else ""
+    if inferred == "string" or (dtype != object and pd.api.types.is_string_dtype(dtype)):
+        return " Text dates must be parsed first, e.g. frame[col] = pd.to_datetime(frame[col])."
+    if inferred in ("integer", "floating", "mixed-integer-float", "decimal"):
+        return " It holds numbers as Python objects: convert them first, e.g. pd.to_numeric(frame[col])."
+    if dtype != object or inferred == "empty":
+        return " It holds no value." if inferred == "empty" else ""
+    # other objects: name the Python types there (from a bounded sample: the message only)
+    kinds = pd.unique(series.dropna().iloc[:1000].map(lambda v: f"{type(v).__module__}.{type(v).__qualname__}"))
+    shown = ", ".join(str(k).removeprefix("builtins.") for k in kinds[:5]) + (" ..." if len(kinds) > 5 else "")
+    if len(kinds) == 1:
+        return f" It holds {shown} objects: give dates, datetimes or numbers."
+    return (f" It holds a mix of {shown}: make it one kind first (dates or datetimes, e.g. "
+            f"pd.to_datetime(frame[col]), or numbers).")
 
 
 def _datetimes(series: pd.Series, what: str) -> tuple[np.ndarray, str, Any]:
@@ -103,7 +120,13 @@ def _datetimes(series: pd.Series, what: str) -> tuple[np.ndarray, str, Any]:
             # datetime.date objects: calendar dates, held in seconds (years 1 to 9999 fit)
             vals = s.to_numpy(dtype=object, copy=True)
             vals[s.isna().to_numpy()] = None  # NaN or NaT among the dates: NaT below
-            return vals.astype("datetime64[D]").astype("datetime64[s]").view(np.int64), "s", None
+            days = vals.astype("datetime64[D]")
+            # pandas calls a mix of dates and datetimes "date": keep the datetimes' times of day
+            # (microseconds, as datetime.datetime holds them) instead of cutting them to the day
+            exact = vals.astype("datetime64[us]")
+            if (exact != days).any():
+                return exact.view(np.int64), "us", None
+            return days.astype("datetime64[s]").view(np.int64), "s", None
         try:
             s = pd.to_datetime(s)
         except (ValueError, TypeError) as err:

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._check_visits import planned_findings, window_findings
+from ._frames import frames
 from ._interval_check import interval_findings
 from ._options import checked_options
 from ._panel import Panel, as_id_list, require_columns, time_kind
@@ -34,6 +35,7 @@ PROBLEMS = {
 
 
 @checked_options
+@frames(struct_names=lambda a: {"id": as_id_list(a["id"])})
 def check(
     frame: pd.DataFrame,
     *,

@@ -8,6 +8,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, key_column
 from .errors import ColumnExistsError, ConflictingTiesError, OptionError, rows_message
@@ -21,6 +22,7 @@ LABELS_COLUMN = "source_rows"
 
 
 @checked_options
+@frames()
 def collapse_ties(
     frame: pd.DataFrame,
     *,

@@ -40,6 +40,7 @@ from typing import Any, Literal, Union
 import numpy as np
 import pandas as pd
 
+from ._frames import frames, to_pandas
 from ._panel import UNITS_NS, as_id_list, key_column, time_kind
 from ._transform import REGISTRY, Transform
 from ._upgrade import upgrade_v1
@@ -185,6 +186,7 @@ class Derivation:
         return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
                           description=self.description, order=self.order, time_unit=self.time_unit)
 
+    @frames(result="added", tables="tables", passthrough=lambda f: type(f).__module__.startswith("dask."))
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
               threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
@@ -242,8 +244,8 @@ class Derivation:
         0      sbp_baseline     1  baseline           sbp      False
         1  sbp_baseline_lag1     2       lag  sbp_baseline      False
         """
-        if frame is not None:
-            return self._dictionary_from_result(self.apply(frame, tables))
+        if frame is not None:  # polars and pyarrow frames: the dtypes of their pandas form
+            return self._dictionary_from_result(self.apply(to_pandas(frame), tables))
         if self.unit is not None or self.time_unit is not None:
             unit = _unit_words(self.unit or self.time_unit or "D")
         else:

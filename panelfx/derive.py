@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import Deferred
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, as_id_list
 from ._tables import check_table_uses, side_tables
@@ -80,6 +81,7 @@ def _plan_one(i: int, tr: object, transforms: Sequence[Transform], made: dict[st
 
 
 @checked_options
+@frames(result="added", tables="tables")
 def derive(
     frame: pd.DataFrame,
     *transforms: Transform,
@@ -133,8 +135,6 @@ def derive(
     r2    1    7  12.0     12.5       -0.5
     r3    1    0  12.5      NaN        0.0
     """
-    if not isinstance(frame, pd.DataFrame):
-        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     # the transform list and the options are checked before any O(n log n) work
     workers = _threads(threads)
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from ._clock import Clock, last_at_or_before
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, as_id_list, require_columns
 from ._side import SideRows, side_rows, side_time_column
@@ -48,6 +49,7 @@ _BAND_KEYS = ("since", "at_entry", "bands", "unit", "name")
 
 
 @checked_options
+@frames(tables="tables", also=("events",))
 def episodes(
     frame: pd.DataFrame,
     *,

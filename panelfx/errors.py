@@ -32,6 +32,7 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "FrameTypeError",
 ]
 
 #: How many offending ids an error message shows.
@@ -146,6 +147,11 @@ class IntervalError(PanelError, ValueError):
 class FollowUpError(PanelError, ValueError):
     """Follow-up or person-time is not defined: a missing entry, exit, event flag, start or stop, an
     exit at or before entry, a stop at or before start, or an event count that is not a whole number."""
+
+
+class FrameTypeError(PanelError, TypeError):
+    """Something that is not a frame where a frame is needed: the message names what was
+    received and what is accepted (a pandas DataFrame, a polars DataFrame or a pyarrow Table)."""
 
 
 class UnknownSubjectError(PanelError, ValueError):

@@ -10,6 +10,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, require_columns
 from ._time import decimal_scale, exact_number
@@ -26,6 +27,7 @@ MAX_POINTS = 100_000
 
 
 @checked_options
+@frames()
 def grid(
     frame: pd.DataFrame,
     col: str | Sequence[str],

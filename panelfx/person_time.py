@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
 from ._options import checked_options
 from ._panel import require_columns
 from ._poisson import poisson_limits
@@ -21,6 +22,7 @@ RATE_COLUMNS = ("events", "person_time", "rate", "rate_lower", "rate_upper")
 
 
 @checked_options
+@frames(frame="episodes")
 def person_time(
     episodes: pd.DataFrame,
     by: str | Sequence[str] = (),

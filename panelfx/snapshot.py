@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ._clock import Clock, last_at_or_before
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, as_id_list, require_columns
 from ._tables import SideTable
@@ -21,6 +22,7 @@ __all__ = ["snapshot"]
 
 
 @checked_options
+@frames(tables="tables")
 def snapshot(
     frame: pd.DataFrame,
     steps: Derivation | Transform | Sequence[Transform],

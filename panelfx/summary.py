@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from . import _kernels as K
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, require_columns
 from .errors import ColumnExistsError, NotConstantError, OptionError, rows_message
@@ -24,6 +25,7 @@ NEEDS = {"auc_from": "area_from", "time_above": "threshold", "time_below": "thre
 
 
 @checked_options
+@frames()
 def subject_summary(
     frame: pd.DataFrame,
     cols: str | Sequence[str],

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import to_float
+from ._frames import frames
 from ._panel import as_id_list, require_columns
 from ._tables import _family, common_axis
 from ._time import INT_MAX, INT_MIN, TimeAxis
@@ -23,6 +24,7 @@ REASONS = ("no dosing", "onset unknown", "before first dose", "after window", "s
            "worsened after first dose", "pre-existing, not worsened", "on treatment", "within {} after last dose")
 
 
+@frames(frame="events", result="added", also=("dosing",))
 def treatment_emergent(
     events: pd.DataFrame,
     dosing: pd.DataFrame,

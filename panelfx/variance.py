@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ._columns import to_float
+from ._frames import frames
 from ._nesting import CODES, Codes, check_levels, compact, level_codes, parents
 from ._options import checked_options
 from ._panel import require_columns
@@ -29,6 +30,7 @@ TABLE_COLUMNS = ("level", "units", "mean_size", "df", "sum_sq", "mean_sq", "vari
 
 
 @checked_options
+@frames()
 def variance_components(
     frame: pd.DataFrame,
     col: str,

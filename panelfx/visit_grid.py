@@ -10,6 +10,7 @@ import pandas as pd
 
 from . import _visits as V
 from ._columns import EXACT_FLOAT_INT
+from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel
 from .errors import ColumnExistsError, OptionError
@@ -23,6 +24,7 @@ RECORD_STATES = ["picked", "no value", "missed"]
 
 
 @checked_options
+@frames()
 def visit_grid(
     frame: pd.DataFrame,
     windows: Windows | Sequence[Sequence[Any]],

@@ -199,7 +199,8 @@ def test_wrong_unit_for_datetimes():
 def test_not_a_transform_or_not_a_frame():
     with pytest.raises(OptionError, match="transform #2 is a str, not a panelfx transform"):
         run(visits(), pfx.lag("y"), "lag")
-    with pytest.raises(TypeError, match="expected a pandas DataFrame"):
+    with pytest.raises(pfx.FrameTypeError, match="frame must be a pandas DataFrame, a polars DataFrame or a pyarrow "
+                       "Table, got a dict"):  # also a TypeError
         pfx.derive(visits().to_dict(), pfx.lag("y"), id="pid", time="t")
     with pytest.raises(OptionError, match="uses the id column"):
         run(visits(), pfx.lag("pid"))

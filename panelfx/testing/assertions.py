@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from .. import _kernels as K
+from .._frames import frames
 from .._panel import Panel, as_id_list
 from .._tables import SideTable
 from .._transform import Transform
@@ -104,6 +105,7 @@ def _panel(frame: pd.DataFrame, id: str | Sequence[str], time: str, order: str |
 
 
 # --------------------------------------------------------------------------- within subject
+@frames(result="none")  # polars and pyarrow frames too
 def assert_constant_within(
     frame: pd.DataFrame,
     col: str,
@@ -188,6 +190,7 @@ def _assert_monotonic(frame: pd.DataFrame, col: str, id: str | Sequence[str], ti
         )
 
 
+@frames(result="none")  # polars and pyarrow frames too
 def assert_non_decreasing_within(
     frame: pd.DataFrame,
     col: str,
@@ -220,6 +223,7 @@ def assert_non_decreasing_within(
     _assert_monotonic(frame, col, id, time, strict, ignore_missing, increasing=True)
 
 
+@frames(result="none")  # polars and pyarrow frames too
 def assert_non_increasing_within(
     frame: pd.DataFrame,
     col: str,
@@ -236,6 +240,7 @@ def assert_non_increasing_within(
 
 
 # --------------------------------------------------------------------------- past-only
+@frames(result="none", tables="tables")  # polars and pyarrow frames too
 def assert_past_only(
     frame: pd.DataFrame,
     *transforms: Transform,
