@@ -193,8 +193,6 @@ class _Spec:
     def read(cls, frame: pd.DataFrame, *, id: Any, time: Any, entry: Any, exit: Any, event: Any, covariates: Any,
              events: Any, split_at: Any, lag: Any, merge: Any, missing: Any, tables: Any, gap_time: Any,
              tie_shift: Any, unit: Any) -> _Spec:
-        if not isinstance(frame, pd.DataFrame):
-            raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
         id_cols = as_id_list(id)
         for name, value in (("time", time), ("exit", exit)):
             if not isinstance(value, str) or not value:

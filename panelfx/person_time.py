@@ -61,8 +61,6 @@ def person_time(
     0   a      10        250.0  0.040    0.019182    0.073561
     1   b       2        250.0  0.008    0.000969    0.028899
     """
-    if not isinstance(episodes, pd.DataFrame):
-        raise TypeError(f"expected a pandas DataFrame, got {type(episodes).__name__}")
     by_cols = [by] if isinstance(by, str) else list(by)
     if not all(isinstance(c, str) for c in by_cols):
         raise OptionError(f"by must be a column name or a list of column names, got {by!r}")

@@ -76,8 +76,6 @@ def snapshot(
     """
     transforms, id_cols, time_col, keys = _steps(steps, id, time, {"unit": unit, "order": order,
                                                                    "time_unit": time_unit})
-    if not isinstance(frame, pd.DataFrame):
-        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     if not isinstance(allow_future, bool):
         raise OptionError(f"allow_future must be True or False, got {allow_future!r}")
     if not isinstance(name, str) or not name:

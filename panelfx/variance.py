@@ -95,8 +95,6 @@ def variance_components(
     >>> round(vc.attrs["design_effect"], 4), round(vc.attrs["n_effective"], 3)
     (3.4712, 2.305)
     """
-    if not isinstance(frame, pd.DataFrame):
-        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     if not isinstance(col, str) or not col:
         raise OptionError(f"col must be a column name, got {col!r}")
     names = check_levels(levels)
