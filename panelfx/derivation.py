@@ -65,9 +65,9 @@ class DerivationFileError(OptionError):
     """A saved derivation is malformed: bad JSON, wrong version, unknown key or transform,
     or an option of the wrong type.  ``path`` is where in the file (``transforms[1].options.periods``)."""
 
-    def __init__(self, message: str, *, path: str = "") -> None:
+    def __init__(self, message: str, *, path: str = "", where: str | None = None) -> None:
         super().__init__(f"{path}: {message}" if path else message, column=None)
-        self.path = path
+        self.path = path if where is None else where  # where=: the message is prefixed already
 
 
 # ---------------------------------------------------------------------------------- value
@@ -326,7 +326,7 @@ class Derivation:
         id_ = _required(panel, "id", "panel")
         if isinstance(id_, list):
             if not id_ or not all(isinstance(c, str) and c for c in id_):
-                raise DerivationFileError(f"must be a column name or a list of column names, got {id_!r}",
+                raise DerivationFileError(f"must be a column name or a list of column names, got {_short(id_)}",
                                           path="panel.id")
             id_ = tuple(id_)
         else:
@@ -334,16 +334,16 @@ class Derivation:
         time = _required(panel, "time", "panel")
         _expect(time, str, "panel.time", "must be a column name")
         unit = panel.get("unit")
-        if unit is not None and unit not in UNITS_NS:
-            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({unit!r})",
+        if unit is not None and (not isinstance(unit, str) or unit not in UNITS_NS):
+            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({_short(unit)})",
                                       path="panel.unit")
         order = panel.get("order")
         if order is not None:
             _expect(order, str, "panel.order", "must be null or a column name")
         time_unit = panel.get("time_unit")
-        if time_unit is not None and time_unit not in UNITS_NS:
+        if time_unit is not None and (not isinstance(time_unit, str) or time_unit not in UNITS_NS):
             raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(time_unit)} "
-                                      f"({time_unit!r})", path="panel.time_unit")
+                                      f"({_short(time_unit)})", path="panel.time_unit")
         items = _required(doc, "transforms", "")
         _expect(items, list, "transforms", "must be a list")
         transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
@@ -359,22 +359,27 @@ class Derivation:
         """Read a saved derivation; malformed input raises :class:`DerivationFileError`
         naming the key and its path in the file."""
         if isinstance(text, bytes):
-            try:
-                text = text.decode("utf-8")
-            except UnicodeDecodeError as err:
-                raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start})") from None
+            text = _decode(text)
         if not isinstance(text, str):
             raise TypeError(f"from_json expects a str, got {type(text).__name__}")
+        # RFC 8259 section 8.1: a parser may ignore a byte order mark (Windows editors add one).
+        text = text.removeprefix("\ufeff")
         if not text.strip():
             raise DerivationFileError("the file is empty")
         try:
-            doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
+            doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant,
+                             parse_int=_parse_int, parse_float=_parse_float)
+        except RecursionError:  # nesting deeper than Python's stack: find where, without recursion
+            path, line, col = _deep_path(text)
+            raise DerivationFileError(f"nested more than {MAX_DEPTH} levels deep (at line {line}, column {col})",
+                                      path=path) from None
         except json.JSONDecodeError as err:
             # a string still open at the end of the text is reported where it starts
             cut = err.pos >= len(text.rstrip()) or err.msg.startswith("Unterminated string")
             hint = " (the file looks truncated)" if cut else ""
             raise DerivationFileError(
                 f"not valid JSON: {err.msg} at line {err.lineno}, column {err.colno}{hint}") from None
+        _check_tree(doc)
         return cls.from_dict(doc)
 
     def save(self, path: str | os.PathLike[str]) -> None:
@@ -390,7 +395,7 @@ class Derivation:
         try:
             return cls.from_json(data)
         except DerivationFileError as err:
-            raise DerivationFileError(f"{os.fspath(path)}: {err}") from None
+            raise DerivationFileError(f"{os.fspath(path)}: {err}", where=err.path) from None
 
 
 # ---------------------------------------------------------------------------------- helpers
@@ -443,17 +448,159 @@ def _plain(value: Any, path: str, tr: Transform) -> Any:
                       f"{tr.type_name}); give a plain value such as a number or a string like '90D'")
 
 
+# ---------------------------------------------------------------------------------- parsing
+# The JSON parser's hooks never raise: what cannot be an option (NaN, a huge number, a key
+# given twice) is kept as a marker, and _check_tree then reports the first one with its path.
+
+#: Deepest nesting of objects and lists a saved derivation may have; a file needs 5 or 6.
+MAX_DEPTH = 32
+#: Most digits an integer may have (int64 holds 19); Python refuses to parse beyond 4300.
+MAX_DIGITS = 19
+#: Longest value shown in an error message.
+SHOW_CHARS = 60
+
+
+@dataclasses.dataclass(frozen=True)
+class _Unreadable:
+    """A JSON token that cannot be an option value, kept so that the error can name its path."""
+
+    text: str
+    why: str
+
+    def __repr__(self) -> str:
+        return self.text if len(self.text) <= SHOW_CHARS else f"{self.text[:20]}...{self.text[-10:]}"
+
+
+class _Duplicated(dict[str, Any]):
+    """An object in which ``key`` appears more than once (the later values are dropped)."""
+
+    key: str
+
+
 def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
-    out: dict[str, Any] = {}
-    for k, v in pairs:
-        if k in out:
-            raise DerivationFileError(f"duplicate key {k!r} in an object of the file")
-        out[k] = v
-    return out
+    out: dict[str, Any] = dict(pairs)
+    if len(out) == len(pairs):
+        return out
+    # RFC 8259 section 4: names SHOULD be unique; a second value for a key is a mistake
+    dup = _Duplicated(out)
+    seen: set[str] = set()
+    for k, _ in pairs:
+        if k in seen:
+            dup.key = k
+            break
+        seen.add(k)
+    return dup
 
 
 def _no_constant(name: str) -> Any:
-    raise DerivationFileError(f"{name} is not a JSON value")
+    return _Unreadable(name, f"{name} is not a JSON value (RFC 8259 has no NaN or Infinity): write a number or null")
+
+
+def _parse_int(text: str) -> Any:
+    if len(text.lstrip("-")) > MAX_DIGITS:
+        return _Unreadable(text, f"an integer of {len(text.lstrip('-'))} digits is too large "
+                                 f"(at most {MAX_DIGITS} digits)")
+    return int(text)
+
+
+def _parse_float(text: str) -> Any:
+    value = float(text)
+    if not math.isfinite(value):  # 1e999 would read as infinity
+        return _Unreadable(text, f"the number {_short(text)} is too large to hold (it would be infinite)")
+    return value
+
+
+def _decode(data: bytes) -> str:
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise DerivationFileError("the file is not UTF-8 text: it starts with a UTF-16 byte order mark; "
+                                  "save it as UTF-8 (RFC 8259 section 8.1)")
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as err:
+        line = data.count(b"\n", 0, err.start) + 1
+        raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start}, line {line}); "
+                                  "save it as UTF-8") from None
+
+
+def _check_tree(doc: Any) -> None:
+    """Refuse, with its path, the first marker left by the parser, a value nested deeper than
+    :data:`MAX_DEPTH` or a string that cannot be written as UTF-8 (an escaped lone surrogate).
+    Walks without recursion, in the order of the file."""
+    stack: list[tuple[Any, str, int]] = [(doc, "", 0)]
+    while stack:
+        value, path, depth = stack.pop()
+        if isinstance(value, _Unreadable):
+            raise DerivationFileError(value.why, path=path)
+        if isinstance(value, str):
+            _text_ok(value, path)
+        elif isinstance(value, (dict, list)):
+            if depth >= MAX_DEPTH:
+                raise DerivationFileError(f"nested more than {MAX_DEPTH} levels deep", path=path)
+            if isinstance(value, _Duplicated):
+                raise DerivationFileError(f"duplicate key {value.key!r} in an object", path=_join(path, value.key))
+            if isinstance(value, dict):
+                for k in value:
+                    _text_ok(k, _join(path, "<key>"))
+                items = [(v, _join(path, k), depth + 1) for k, v in value.items()]
+            else:
+                items = [(v, f"{path}[{i}]", depth + 1) for i, v in enumerate(value)]
+            stack.extend(reversed(items))
+
+
+def _text_ok(text: str, path: str) -> None:
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        raise DerivationFileError(f"the string {_short(text)} holds an escaped lone surrogate (\\ud800-\\udfff), "
+                                  "which is not text", path=path) from None
+
+
+def _deep_path(text: str) -> tuple[str, int, int]:
+    """Where the nesting of ``text`` first goes deeper than :data:`MAX_DEPTH`: the path, line and
+    column.  Only called when the parser ran out of stack, and stops there."""
+    stack: list[list[Any]] = []  # per open container: its bracket and the current key or index
+    key: Any = None
+    i, n = 0, len(text)
+    while i < n:
+        c = text[i]
+        if c == '"':
+            j = i + 1
+            while True:  # the closing quote is one not escaped by an odd number of backslashes
+                j = text.find('"', j)
+                if j < 0:
+                    j = n
+                    break
+                k = j
+                while text[k - 1] == "\\":
+                    k -= 1
+                if (j - k) % 2 == 0:
+                    break
+                j += 1
+            key = text[i + 1:j]
+            i = j + 1
+            continue
+        if c in "[{":
+            if len(stack) >= MAX_DEPTH:
+                break
+            stack.append([c, 0 if c == "[" else None])
+        elif c in "]}" and stack:
+            stack.pop()
+        elif c == "," and stack and stack[-1][0] == "[":
+            stack[-1][1] += 1
+        elif c == ":" and stack:
+            stack[-1][1] = key
+        i += 1
+    path = ""
+    for bracket, at in stack:
+        path = f"{path}[{at}]" if bracket == "[" else _join(path, str(at))
+    line = text.count("\n", 0, i) + 1
+    return path, line, i - (text.rfind("\n", 0, i) + 1) + 1
+
+
+def _short(value: Any) -> str:
+    """``repr`` of a value for an error message, cut to :data:`SHOW_CHARS`."""
+    text = repr(value)
+    return text if len(text) <= SHOW_CHARS else f"{text[:SHOW_CHARS - 15]} ... {text[-10:]}"
 
 
 def _kind(value: Any) -> str:
@@ -465,7 +612,7 @@ def _kind(value: Any) -> str:
 
 def _expect(value: Any, kind: type, path: str, rule: str) -> None:
     if not isinstance(value, kind):
-        raise DerivationFileError(f"{rule}, got {_kind(value)} ({value!r})" if path else
+        raise DerivationFileError(f"{rule}, got {_kind(value)} ({_short(value)})" if path else
                                   f"{rule}, got {_kind(value)}", path=path)
 
 
@@ -522,13 +669,21 @@ def _transform_from(item: Any, path: str) -> Transform:
                                   path=f"{path}.options") from None
 
 
+#: Resolved annotations per transform class (see _hints).
+_HINTS: dict[type, dict[str, Any]] = {}
+
+
 def _hints(cls: type) -> dict[str, Any]:
     """Field annotations resolved in the transform's own module (never from the file).
-    Annotations that cannot be resolved are left to the transform's validation."""
-    try:
-        return typing.get_type_hints(cls)
-    except Exception:  # noqa: BLE001 - e.g. a name imported only for type checkers
-        return {}
+    Annotations that cannot be resolved are left to the transform's validation.
+    Resolved once per class: resolving them for every transform of a file was most of
+    the time a large file took to load."""
+    if cls not in _HINTS:
+        try:
+            _HINTS[cls] = typing.get_type_hints(cls)
+        except Exception:  # noqa: BLE001 - e.g. a name imported only for type checkers
+            _HINTS[cls] = {}
+    return _HINTS[cls]
 
 
 _NoneType = type(None)
@@ -539,7 +694,7 @@ def _convert(value: Any, hint: Any, path: str) -> Any:
     annotation says tuple (frozen transforms must stay hashable)."""
     ok, out = _match(value, hint)
     if not ok:
-        raise DerivationFileError(f"must be {_describe_hint(hint)}, got {_kind(value)} ({value!r})", path=path)
+        raise DerivationFileError(f"must be {_describe_hint(hint)}, got {_kind(value)} ({_short(value)})", path=path)
     return out
 
 
