@@ -50,7 +50,12 @@ FORMAT = "panelfx.derivation"
 VERSION = 1
 
 #: Columns of :meth:`Derivation.dictionary`, in order.
-DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit"]
+DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit",
+                      "label", "note"]
+
+#: Longest label of a transform: ADaM variable labels are at most 40 characters (the SAS V5
+#: transport limit the CDISC ADaM Implementation Guide keeps).
+LABEL_CHARS = 40
 
 #: Key of the provenance record in ``DataFrame.attrs`` (and in Parquet metadata).
 ATTRS_KEY = "panelfx"
@@ -104,6 +109,10 @@ class Derivation:
     description: str
     order: str | None
     time_unit: str | None
+    # Per transform (same positions), "" for none; () when no transform has one.  Set by
+    # described(), never by the constructor, so transforms need no label options of their own.
+    labels: tuple[str, ...] = dataclasses.field(default=(), repr=False)
+    notes: tuple[str, ...] = dataclasses.field(default=(), repr=False)
 
     def __init__(
         self,
@@ -179,8 +188,59 @@ class Derivation:
                 added.extend(item.transforms)
             else:
                 added.append(item)
-        return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
-                          description=self.description, order=self.order, time_unit=self.time_unit)
+        out = Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
+                         description=self.description, order=self.order, time_unit=self.time_unit)
+        texts = [self._texts()]
+        texts += [item._texts() if isinstance(item, Derivation) else ([""], [""]) for item in more]
+        return out._with_texts([x for lab, _ in texts for x in lab], [x for _, note in texts for x in note])
+
+    # -------------------------------------------------------------- labels and notes
+    def described(self, column: str, *, label: str | None = None, note: str | None = None) -> Derivation:
+        """A copy with a ``label`` (short text, at most 40 characters, one line, as an ADaM
+        variable label) and/or a ``note`` (free text) on the transform that makes ``column``;
+        ``None`` keeps what is there, ``""`` removes it.  Both are shown by :meth:`dictionary`
+        (on every output of that transform), saved with the derivation and kept by ``extend``.
+
+        >>> import panelfx as pfx
+        >>> d = pfx.Derivation(pfx.baseline("sbp"), pfx.lag("sbp"), id="pid", time="day")
+        >>> d = d.described("sbp_lag1", label="Systolic BP at previous visit", note="invented example")
+        >>> d.dictionary()[["column", "label", "note"]]
+                 column                          label               note
+        0  sbp_baseline
+        1      sbp_lag1  Systolic BP at previous visit  invented example
+        """
+        step = next((i for i, tr in enumerate(self.transforms) if column in tr.outputs()), None)
+        if step is None:
+            raise OptionError(f"column {column!r} is not made by this derivation (it makes: "
+                              f"{', '.join(self.outputs()) or 'nothing'})", column=column)
+        labels, notes = self._texts()
+        if label is not None:
+            labels[step] = check_label(label)
+        if note is not None:
+            notes[step] = check_note(note)
+        return self._with_texts(labels, notes)
+
+    @staticmethod
+    def json_schema() -> dict[str, Any]:
+        """The JSON Schema (draft 2020-12) of saved derivations, generated from the transform
+        registry; the same as the file ``derivation.schema.json`` shipped in the package."""
+        from ._derivation_schema import derivation_schema
+
+        return derivation_schema()
+
+    def _texts(self) -> tuple[list[str], list[str]]:
+        n = len(self.transforms)
+        return list(self.labels or [""] * n), list(self.notes or [""] * n)
+
+    def _with_texts(self, labels: Sequence[str], notes: Sequence[str]) -> Derivation:
+        """This derivation with those labels and notes (one per transform), in the normal form."""
+        out = Derivation(*self.transforms, id=self.id, time=self.time, unit=self.unit,
+                         description=self.description, order=self.order, time_unit=self.time_unit)
+        if any(labels):
+            object.__setattr__(out, "labels", tuple(labels))
+        if any(notes):
+            object.__setattr__(out, "notes", tuple(notes))
+        return out
 
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
               threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
@@ -258,6 +318,7 @@ class Derivation:
     def _dictionary(self, dtypes: Mapping[str, str], time_unit: str) -> pd.DataFrame:
         rows = []
         past: dict[str, bool] = {}
+        labels, notes = self._texts()
         for step, tr in enumerate(self.transforms, start=1):
             sources = (*tr.inputs(), *(f"{u.name}.{c}" for u in tr.tables() for c in u.all_columns()))
             only_past = bool(tr.past_only) and all(past.get(c, True) for c in sources)
@@ -270,6 +331,7 @@ class Derivation:
                     "column": name, "step": step, "transform": tr.type_name, "sources": ", ".join(sources),
                     "description": words, "past_only": only_past, "dtype": dtypes.get(name),
                     "time_unit": _unit_of(kinds[k - 1], time_unit, tr),
+                    "label": labels[step - 1], "note": notes[step - 1],
                 })
         return dictionary_frame(rows)
 
@@ -293,7 +355,12 @@ class Derivation:
             path = f"transforms[{i}]"
             options = {f.name: _plain(getattr(tr, f.name), f"{path}.options.{f.name}", tr)
                        for f in dataclasses.fields(tr) if f.init}
-            doc["transforms"].append({"type": tr.type_name, "options": options})
+            entry: dict[str, Any] = {"type": tr.type_name, "options": options}
+            if self.labels and self.labels[i]:  # written only when set: files without them read as before
+                entry["label"] = self.labels[i]
+            if self.notes and self.notes[i]:
+                entry["note"] = self.notes[i]
+            doc["transforms"].append(entry)
         return doc
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -347,12 +414,15 @@ class Derivation:
         items = _required(doc, "transforms", "")
         _expect(items, list, "transforms", "must be a list")
         transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
+        labels = [_text_from(item, "label", i, check_label) for i, item in enumerate(items)]
+        notes = [_text_from(item, "note", i, check_note) for i, item in enumerate(items)]
         try:
-            return cls(*transforms, id=id_, time=time, unit=unit, description=description, order=order,
-                       time_unit=time_unit)
+            out = cls(*transforms, id=id_, time=time, unit=unit, description=description, order=order,
+                      time_unit=time_unit)
         except PanelError as err:
             where = getattr(err, "position", None)
             raise DerivationFileError(str(err), path="panel" if where is None else f"transforms[{where}]") from None
+        return out._with_texts(labels, notes) if any(labels) or any(notes) else out
 
     @classmethod
     def from_json(cls, text: str | bytes) -> Derivation:
@@ -405,7 +475,8 @@ def dictionary_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
     """The data dictionary as a frame, from its rows (also as recorded in ``attrs``)."""
     if not rows:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
-    return pd.DataFrame(list(rows), columns=DICTIONARY_COLUMNS)
+    # records written before labels and notes existed have none
+    return pd.DataFrame([{"label": "", "note": "", **row} for row in rows], columns=DICTIONARY_COLUMNS)
 
 
 def _unit_of(kind: str | None, unit: str, tr: Transform) -> str:
@@ -633,9 +704,37 @@ def _join(path: str, key: str) -> str:
     return f"{path}.{key}" if path else key
 
 
+def check_label(label: Any) -> str:
+    """A transform's label: one line of at most :data:`LABEL_CHARS` characters."""
+    if not isinstance(label, str):
+        raise OptionError(f"label must be a string, got {_kind(label)} ({_short(label)})")
+    if len(label) > LABEL_CHARS:
+        raise OptionError(f"label must be at most {LABEL_CHARS} characters (as an ADaM variable label), got "
+                          f"{len(label)}: {_short(label)}; put longer text in note=")
+    if not label.isprintable():
+        raise OptionError(f"label must be one line of printable text, got {_short(label)}")
+    return label
+
+
+def check_note(note: Any) -> str:
+    """A transform's note: any text."""
+    if not isinstance(note, str):
+        raise OptionError(f"note must be a string, got {_kind(note)} ({_short(note)})")
+    return note
+
+
+def _text_from(item: dict[str, Any], key: str, i: int, check: Any) -> str:
+    if key not in item:
+        return ""
+    try:
+        return str(check(item[key]))
+    except OptionError as err:
+        raise DerivationFileError(str(err), path=f"transforms[{i}].{key}") from None
+
+
 def _transform_from(item: Any, path: str) -> Transform:
     _expect(item, dict, path, "each transform must be an object with keys type and options")
-    _no_unknown(item, ("type", "options"), path)
+    _no_unknown(item, ("type", "options", "label", "note"), path)
     type_name = _required(item, "type", path)
     _expect(type_name, str, f"{path}.type", "must be the name of a transform")
     cls = REGISTRY.get(type_name)
