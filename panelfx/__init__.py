@@ -28,6 +28,7 @@ from .errors import (
     FollowUpError,
     IntervalError,
     MissingColumnError,
+    MissingDependencyError,
     MissingTableError,
     NestingError,
     NotConstantError,
@@ -140,6 +141,7 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "MissingDependencyError",
 ]
 
 
