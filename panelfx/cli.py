@@ -41,7 +41,7 @@ from typing import Any, NoReturn
 
 import pandas as pd
 
-from .derivation import ATTRS_KEY, TMP_SUFFIX, Derivation, write_atomic
+from .derivation import ATTRS_KEY, DICTIONARY_COLUMNS, TMP_SUFFIX, Derivation, dictionary_frame, write_atomic
 
 __all__ = ["COMMANDS", "read_frame", "write_frame"]
 
@@ -646,6 +646,11 @@ def _apply(argv: list[str]) -> int:
     parser.add_argument("input", help="CSV or Parquet file; - reads CSV from stdin")
     parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv; - writes CSV to stdout")
     parser.add_argument("--output-format", choices=OUTPUT_FORMATS)
+    side = parser.add_mutually_exclusive_group()
+    side.add_argument("--dictionary", metavar="PATH",
+                      help="write the data dictionary as CSV to PATH (default beside a CSV output: "
+                           "OUT.dictionary.csv; Parquet keeps it in its metadata)")
+    side.add_argument("--no-dictionary", action="store_true", help="no data dictionary file beside a CSV output")
     _table_option(parser)
     _input_options(parser, quiet="no progress or summary on stderr")
     big = parser.add_argument_group(
@@ -661,12 +666,15 @@ def _apply(argv: list[str]) -> int:
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
     derivation = Derivation.load(args.derivation)
-    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
-                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
-                                       for spec in args.table}})
+    sources = {"input": args.input, "derivation": args.derivation,
+               **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2] for spec in args.table}}
+    _refuse_overwrite(args.output, sources)
     if args.input != STDIO and (os.path.isdir(args.input)
                                 or any(v is not None for v in (args.memory, args.partitions, args.row_number))
                                 or args.workers != 1):
+        if args.dictionary is not None:
+            raise UsageError(f"--dictionary: a partitioned apply keeps the data dictionary in each part's metadata "
+                             f"and in {args.output}{os.sep}_panelfx.json")
         return _apply_partitioned(derivation, args, progress)
     file_format(args.input, args.input_format or ("csv" if args.input == STDIO else None), "input")
     file_format(args.output, args.output_format or ("csv" if args.output == STDIO else None), "output")
@@ -675,6 +683,7 @@ def _apply(argv: list[str]) -> int:
     folder = os.path.dirname(os.path.abspath(args.output))
     if args.output != STDIO and not os.path.isdir(folder):
         raise FileNotFoundError(f"output folder {folder!r} does not exist")
+    sidecar = _sidecar(args, sources)
     if args.input != STDIO and file_format(args.input, args.input_format, "input") == "parquet" \
             and os.path.exists(args.input):
         import pyarrow.parquet as pq
@@ -691,11 +700,81 @@ def _apply(argv: list[str]) -> int:
         record["tables"] = {name: os.path.basename(path) for name, path in
                             (spec.partition("=")[::2] for spec in args.table)}
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
-    write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
+
+    def write_result() -> None:
+        write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields,
+                    progress=progress)
+
+    if sidecar is None:
+        write_result()
+        return 0
+    # The dictionary's temporary file is renamed into place right after the output is: a run
+    # that fails while writing the output leaves neither changed.
+    table = dictionary_frame(record["dictionary"])
+    _sweep_stale(sidecar)
+
+    def write_both(tmp: str) -> None:
+        table.to_csv(tmp, index=False)
+        write_result()
+
+    try:
+        write_atomic(sidecar, write_both)
+    except OSError as err:
+        if str(err).startswith(f"writing {args.output} failed"):
+            raise
+        raise OSError(f"writing the data dictionary {sidecar} failed (the output {args.output} was written): "
+                      f"{' '.join(str(err.strerror or err).split())}") from err
+    progress.say(f"wrote the data dictionary ({len(table)} columns) to {sidecar}")
     return 0
 
 
-def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
+#: Name of the data dictionary written beside a CSV output ``out.csv``: ``out`` + this.
+DICTIONARY_SUFFIX = ".dictionary.csv"
+
+
+def _sidecar(args: argparse.Namespace, sources: dict[str, str]) -> str | None:
+    """The data dictionary file of this apply, checked before any work: ``--dictionary PATH``,
+    or ``OUT.dictionary.csv`` beside a CSV output (none for Parquet, stdout or --no-dictionary).
+    Like the output, it may not be a file the run reads; the default one replaces only a data
+    dictionary written earlier (its first line is the dictionary's header), never another file."""
+    if args.no_dictionary:
+        return None
+    explicit = args.dictionary is not None
+    if explicit:
+        path = args.dictionary
+        if path == STDIO:
+            raise UsageError("--dictionary needs a file name (stdout carries the output or nothing)")
+    else:
+        if args.output == STDIO or file_format(args.output, args.output_format, "output") != "csv":
+            return None
+        base = os.path.basename(args.output)
+        stem = base[: len(os.path.splitext(_base_name(base))[0])]  # out.csv.gz -> out
+        path = os.path.join(os.path.dirname(args.output), stem + DICTIONARY_SUFFIX)
+    if path == args.output or (os.path.exists(path) and os.path.exists(args.output)
+                               and os.path.samefile(path, args.output)):
+        raise UsageError(f"--dictionary {path} is the output file: give another name")
+    _refuse_overwrite(path, sources, option="--dictionary" if explicit else "the data dictionary")
+    if not explicit and os.path.exists(path) and not _is_dictionary(path):
+        raise UsageError(f"{path} exists and is not a data dictionary written by panelfx apply: refusing to "
+                         "overwrite it; remove it, or give --dictionary PATH or --no-dictionary")
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise FileNotFoundError(f"data dictionary folder {folder!r} does not exist")
+    return path
+
+
+def _is_dictionary(path: str) -> bool:
+    """The file starts with the header line of a data dictionary (so panelfx wrote it)."""
+    header = ",".join(DICTIONARY_COLUMNS)
+    try:
+        with open(path, "rb") as fh:
+            first = fh.read(len(header) + 2)
+    except OSError:
+        return False
+    return first.decode("utf-8", "replace").splitlines()[:1] == [header]
+
+
+def _refuse_overwrite(output: str, sources: dict[str, str], option: str = "-o") -> None:
     """Refuse an output that is one of the files the run reads (same file, however named):
     writing it would destroy the data the result comes from."""
     for what, path in sources.items():
@@ -706,7 +785,7 @@ def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
         except OSError:  # one of them does not exist (yet): they cannot be the same file
             continue
         if same:
-            raise UsageError(f"-o {output} is the {what} file {path}: refusing to overwrite it; "
+            raise UsageError(f"{option} {output} is the {what} file {path}: refusing to overwrite it; "
                              "write the result to another file")
 
 

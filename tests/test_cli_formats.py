@@ -277,3 +277,71 @@ def test_encoding_of_csv(tmp_path):
     (tmp_path / "v.csv").write_bytes(frame.to_csv(index=False).encode("latin-1"))
     got = cli.read_frame(str(tmp_path / "v.csv"), encoding="latin-1")
     assert got["pid"].tolist() == ["Zoë", "Zoë", "Ana"]
+
+
+# ------------------------------------------------------------------------------ data dictionary beside CSV
+
+
+@pytest.fixture
+def run_dir(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    frame = cohort(10)
+    frame.to_csv("visits.csv", index=False)
+    DERIVATION.described("sbp_lag1", label="SBP at the previous visit").save("d.json")
+    return tmp_path
+
+
+def test_dictionary_beside_csv_output(run_dir, capsys):
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv"]) == 0
+    assert capsys.readouterr().err.splitlines()[-1] == \
+        f"panelfx apply: wrote the data dictionary ({len(DERIVATION.outputs())} columns) to out.dictionary.csv"
+    side = pd.read_csv("out.dictionary.csv", keep_default_na=False)
+    expected = pfx.Derivation.load("d.json").dictionary(cli.read_frame("visits.csv"))
+    assert side["column"].tolist() == list(DERIVATION.outputs())
+    assert side["label"].tolist() == [""] * 2 + ["SBP at the previous visit", ""]
+    assert side["dtype"].tolist() == expected["dtype"].tolist()
+    assert side.columns.tolist() == expected.columns.tolist()
+    # a second run replaces its own dictionary; a compressed output's stem; Parquet and stdout: none
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv", "-q"]) == 0
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv.gz", "-q"]) == 0
+    assert os.path.exists("out.dictionary.csv")
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.parquet", "-q"]) == 0
+    assert main(["apply", "d.json", "visits.csv", "-o", "plain.csv", "-q", "--no-dictionary"]) == 0
+    assert main(["apply", "d.json", "visits.csv", "-o", "named.parquet", "-q", "--dictionary", "dd.csv"]) == 0
+    assert sorted(p for p in os.listdir(".") if "dictionary" in p or p == "dd.csv") == \
+        ["dd.csv", "out.dictionary.csv"]
+    assert pd.read_csv("dd.csv")["column"].tolist() == list(DERIVATION.outputs())
+
+
+def test_dictionary_never_overwrites_another_file(run_dir, capsys):
+    (run_dir / "out.dictionary.csv").write_text("my notes\n")
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv"]) == 2
+    assert capsys.readouterr().err.strip() == (
+        "panelfx apply: error: out.dictionary.csv exists and is not a data dictionary written by panelfx apply: "
+        "refusing to overwrite it; remove it, or give --dictionary PATH or --no-dictionary")
+    assert (run_dir / "out.dictionary.csv").read_text() == "my notes\n"
+    assert not os.path.exists("out.csv")  # refused before any work
+    # nor an input, however named
+    assert main(["apply", "d.json", "visits.csv", "-o", "o.csv", "--dictionary", "./visits.csv"]) == 2
+    assert "--dictionary ./visits.csv is the input file visits.csv: refusing to overwrite it" in \
+        capsys.readouterr().err
+    assert main(["apply", "d.json", "visits.csv", "-o", "o.csv", "--dictionary", "o.csv"]) == 2
+    assert "is the output file" in capsys.readouterr().err
+
+
+def test_failed_output_leaves_the_dictionary_as_it_was(run_dir, capsys, monkeypatch):
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv", "-q"]) == 0
+    before = (run_dir / "out.dictionary.csv").read_bytes(), (run_dir / "out.csv").read_bytes()
+    pfx.Derivation.load("d.json").described("sbp_lag1", label="changed").save("d.json")
+    import pyarrow.csv as pc
+
+    class Full(pc.CSVWriter):
+        def write_table(self, *a, **k):
+            raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(pc, "CSVWriter", Full)
+    names = sorted(os.listdir("."))
+    assert main(["apply", "d.json", "visits.csv", "-o", "out.csv", "-q"]) == 2
+    assert "writing out.csv failed (out.csv was left as it was)" in capsys.readouterr().err
+    assert ((run_dir / "out.dictionary.csv").read_bytes(), (run_dir / "out.csv").read_bytes()) == before
+    assert sorted(os.listdir(".")) == names  # no temporary file left
