@@ -9,10 +9,14 @@
   hash partitions on disk and writes a folder of parts (:mod:`panelfx._bigfile`).
 - ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
 
-Files are read and written through pyarrow; the format follows the extension (``.csv``,
-``.csv.gz``, ``.tsv``, ``.parquet``, ``.pq``) unless ``--input-format`` /
-``--output-format`` say otherwise.  Progress and a summary go to stderr, the report and
-the dictionary to stdout.
+The format follows the extension unless ``--input-format`` / ``--output-format`` say
+otherwise.  Read: CSV (``.csv``, ``.csv.gz``, ``.tsv``) and Parquet (``.parquet``, ``.pq``, or a
+folder of Parquet files with hive partitions) and Feather / Arrow IPC (``.feather``,
+``.arrow``) through pyarrow; SAS transport (``.xpt``) and SAS7BDAT, Stata (``.dta``) and SPSS
+(``.sav``, ``.zsav``; needs ``panelfx[formats]``) through pandas' readers.  Written: CSV or
+Parquet; a CSV output gets its data dictionary beside it (``out.dictionary.csv``).  Dates
+written as text in another layout than ISO 8601 are read with ``--date-format`` or
+``--day-first``.  Progress and a summary go to stderr, the report and the dictionary to stdout.
 
 ``-`` as the input reads CSV from stdin; ``-o -`` writes CSV to stdout (pipes:
 ``zcat visits.csv.gz | panelfx apply d.json - -o - | head``).

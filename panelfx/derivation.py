@@ -17,10 +17,12 @@ File layout (version 1)::
       "version": 1,
       "description": "...",
       "panel": {"id": "pid", "time": "day", "unit": null},
-      "transforms": [{"type": "lag", "options": {"col": "sbp", ...}}, ...]
+      "transforms": [{"type": "lag", "options": {"col": "sbp", ...}, "label": "...", "note": "..."}, ...]
     }
 
-Options left out of a file take the transform's defaults; unknown keys are errors.
+Options left out of a file take the transform's defaults; unknown keys are errors.  ``label``
+and ``note`` (see :meth:`Derivation.described`) are written only when set.  The JSON Schema
+of this layout ships as ``panelfx/derivation.schema.json`` (:meth:`Derivation.json_schema`).
 """
 
 from __future__ import annotations
