@@ -304,7 +304,10 @@ def parse_dates(frame: pd.DataFrame, dates: Sequence[str], date_format: str | No
                         column=col, count=int(given.sum()), ids=_ids_of(frame, ids, given))
         layout = date_format
         if layout is None:  # --day-first: the layout pandas sees in the first value, day first
-            from pandas.tseries.api import guess_datetime_format
+            try:
+                from pandas.tseries.api import guess_datetime_format
+            except ImportError:  # pragma: no cover - public from pandas 2.2 on; the same function before
+                from pandas._libs.tslibs.parsing import guess_datetime_format
 
             first_value = str(text[given].iloc[0]) if given.any() else ""
             layout = guess_datetime_format(first_value, dayfirst=True) if first_value else "%d/%m/%Y"

@@ -345,3 +345,21 @@ def test_failed_output_leaves_the_dictionary_as_it_was(run_dir, capsys, monkeypa
     assert "writing out.csv failed (out.csv was left as it was)" in capsys.readouterr().err
     assert ((run_dir / "out.dictionary.csv").read_bytes(), (run_dir / "out.csv").read_bytes()) == before
     assert sorted(os.listdir(".")) == names  # no temporary file left
+
+
+def test_sas7bdat_goes_to_pandas_read_sas(tmp_path, monkeypatch):
+    """No tool at hand writes SAS7BDAT files, so this checks the route only: pandas.read_sas with the
+    format named and the encoding the file records ("infer"), or the one given."""
+    calls = []
+
+    def read_sas(path, **kw):
+        calls.append((os.path.basename(path), kw))
+        return _demo()
+
+    monkeypatch.setattr(pd, "read_sas", read_sas)
+    (tmp_path / "adsl.sas7bdat").write_bytes(b"")
+    frame = cli.read_frame(str(tmp_path / "adsl.sas7bdat"), columns=KEYS)
+    assert list(frame.columns) == KEYS
+    cli.read_frame(str(tmp_path / "adsl.sas7bdat"), encoding="cp1252")
+    assert calls == [("adsl.sas7bdat", {"format": "sas7bdat", "encoding": "infer"}),
+                     ("adsl.sas7bdat", {"format": "sas7bdat", "encoding": "cp1252"})]
