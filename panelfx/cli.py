@@ -265,10 +265,11 @@ def _read_other(path: str, fmt: str, columns: Sequence[str] | None, encoding: st
             raise MissingDependencyError(f"reading SPSS files ({path}) needs pyreadstat, an optional dependency: "
                                          "pip install 'panelfx[formats]'", extra="formats") from None
         return pd.read_spss(path, usecols=list(columns) if columns is not None else None)
-    # SAS: "infer" reads the encoding a SAS7BDAT file records (transport files record none: Latin-1)
+    # SAS: "infer" reads the encoding a SAS7BDAT file records; transport files record none, and
+    # are read as Latin-1 (what pandas 3 means by "infer" there; pandas 2.2 refuses "infer" for them)
     if fmt == "sas7bdat":
         return pd.read_sas(path, format="sas7bdat", encoding=encoding or "infer")
-    reader = pd.read_sas(path, format="xport", encoding=encoding or "infer", iterator=True)
+    reader = pd.read_sas(path, format="xport", encoding=encoding or "latin-1", iterator=True)
     with reader:
         frame = reader.read()
         # the SAS format of each variable, without its width (DATE9. -> DATE)
