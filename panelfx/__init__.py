@@ -30,6 +30,7 @@ from .errors import (
     FrameTypeError,
     IntervalError,
     MissingColumnError,
+    MissingDependencyError,
     MissingTableError,
     NestingError,
     NotConstantError,
@@ -145,6 +146,7 @@ __all__ = [
     "FrameTypeError",
     # frames from other libraries
     "to_pandas",
+    "MissingDependencyError",
 ]
 
 

@@ -9,10 +9,14 @@
   hash partitions on disk and writes a folder of parts (:mod:`panelfx._bigfile`).
 - ``dictionary DERIVATION [INPUT]``: print the data dictionary of a saved derivation.
 
-Files are read and written through pyarrow; the format follows the extension (``.csv``,
-``.csv.gz``, ``.tsv``, ``.parquet``, ``.pq``) unless ``--input-format`` /
-``--output-format`` say otherwise.  Progress and a summary go to stderr, the report and
-the dictionary to stdout.
+The format follows the extension unless ``--input-format`` / ``--output-format`` say
+otherwise.  Read: CSV (``.csv``, ``.csv.gz``, ``.tsv``) and Parquet (``.parquet``, ``.pq``, or a
+folder of Parquet files with hive partitions) and Feather / Arrow IPC (``.feather``,
+``.arrow``) through pyarrow; SAS transport (``.xpt``) and SAS7BDAT, Stata (``.dta``) and SPSS
+(``.sav``, ``.zsav``; needs ``panelfx[formats]``) through pandas' readers.  Written: CSV or
+Parquet; a CSV output gets its data dictionary beside it (``out.dictionary.csv``).  Dates
+written as text in another layout than ISO 8601 are read with ``--date-format`` or
+``--day-first``.  Progress and a summary go to stderr, the report and the dictionary to stdout.
 
 ``-`` as the input reads CSV from stdin; ``-o -`` writes CSV to stdout (pipes:
 ``zcat visits.csv.gz | panelfx apply d.json - -o - | head``).
@@ -41,7 +45,7 @@ from typing import Any, NoReturn
 
 import pandas as pd
 
-from .derivation import ATTRS_KEY, TMP_SUFFIX, Derivation, write_atomic
+from .derivation import ATTRS_KEY, DICTIONARY_COLUMNS, TMP_SUFFIX, Derivation, dictionary_frame, write_atomic
 
 __all__ = ["COMMANDS", "read_frame", "write_frame"]
 
@@ -56,8 +60,15 @@ SHOW_FINDINGS = 100
 
 #: The file name that means stdin (as input) or stdout (as ``-o``).
 STDIO = "-"
-FORMATS = {".csv": "csv", ".tsv": "csv", ".txt": "csv", ".parquet": "parquet", ".pq": "parquet"}
+FORMATS = {".csv": "csv", ".tsv": "csv", ".txt": "csv", ".parquet": "parquet", ".pq": "parquet",
+           ".feather": "feather", ".arrow": "feather", ".ipc": "feather",
+           ".xpt": "xport", ".sas7bdat": "sas7bdat", ".dta": "stata", ".sav": "spss", ".zsav": "spss"}
+#: What can be read (``--input-format``) and written (``--output-format``).
+INPUT_FORMATS = ["csv", "parquet", "feather", "xport", "sas7bdat", "stata", "spss"]
+OUTPUT_FORMATS = ["csv", "parquet"]
 COMPRESSED = (".gz", ".bz2", ".zst", ".lz4")
+#: Layouts tried by ``--day-first`` when no ``--date-format`` is given (pandas guesses from the first value).
+DAY_FIRST_HINT = "%d/%m/%Y"
 
 
 class UsageError(Exception):
@@ -109,9 +120,14 @@ def _base_name(path: str) -> str:
 def file_format(path: str, given: str | None, what: str) -> str:
     if given:
         return given
+    if what == "input" and os.path.isdir(path):  # a folder of Parquet files (hive partitions too)
+        return "parquet"
     fmt = FORMATS.get(os.path.splitext(_base_name(path))[1])
+    if what == "output" and fmt is not None and fmt not in OUTPUT_FORMATS:
+        raise UsageError(f"cannot write {what} {path!r} as {fmt}: panelfx writes .csv or .parquet")
     if fmt is None:
-        raise UsageError(f"cannot tell the format of {what} {path!r} from its extension: use .csv or .parquet, "
+        known = ", ".join(sorted(FORMATS)) if what == "input" else ".csv, .parquet"
+        raise UsageError(f"cannot tell the format of {what} {path!r} from its extension ({known}), "
                          f"or give --{what}-format")
     return fmt
 
@@ -123,22 +139,49 @@ def read_frame(
     columns: Sequence[str] | None = None,
     text_columns: Sequence[str] = (),
     progress: Progress | None = None,
+    dates: Sequence[str] = (),
+    date_format: str | None = None,
+    day_first: bool = False,
+    ids: Sequence[str] = (),
+    encoding: str | None = None,
 ) -> pd.DataFrame:
-    """Read a CSV or Parquet file through pyarrow into pandas (dates as datetime64).
+    """Read a data file into pandas (dates as datetime64): CSV, Parquet (a file, or a folder of
+    files with hive partitions ``key=value/``) and Feather / Arrow IPC through pyarrow; SAS
+    transport (.xpt) and SAS7BDAT through ``pandas.read_sas``, Stata (.dta) through
+    ``pandas.read_stata``, SPSS (.sav, .zsav) through ``pandas.read_spss`` (needs pyreadstat:
+    ``pip install 'panelfx[formats]'``).  The format follows the extension unless ``fmt`` is given.
 
     ``columns`` reads only those; ``text_columns`` keeps CSV columns as text (ids such as
-    "007" would otherwise become numbers)."""
+    "007" would otherwise become numbers).  ``dates`` are the columns that must hold dates
+    or numbers (the time column): text there is parsed with ``date_format`` (strftime codes,
+    as ``pandas.to_datetime(format=)``) or, with ``day_first``, in the day-first layout of its
+    first value, and refused otherwise with the command-line option to use.  ``ids`` name the
+    subjects of values that do not parse.  ``encoding`` is that of CSV and SAS text."""
     import pyarrow as pa
 
     fmt = file_format(path, fmt or ("csv" if path == STDIO else None), "input")
     progress = progress or Progress("read", quiet=True)
+    if fmt not in ("csv", "parquet") and path == STDIO:
+        raise UsageError(f"- reads CSV or Parquet from stdin, not {fmt}: give the file name")
+    if fmt not in ("csv", "parquet"):
+        frame = _read_other(path, fmt, columns, encoding)
+        if columns is not None:
+            _require(list(frame.columns), columns, path)
+            frame = frame[list(columns)]
+        frame = parse_dates(frame, dates, date_format, day_first, path, ids)
+        progress.done(f"read {len(frame):,} rows, {frame.shape[1]} columns from {path}", len(frame))
+        return frame
+    if date_format is not None or day_first:  # CSV dates are parsed here, not guessed by pyarrow
+        text_columns = [*text_columns, *dates]
     # stdin is read whole into memory once (the frame is held in memory anyway): CSV
     # column checks and Parquet both need to read it more than once.
     data: Any = io.BytesIO(sys.stdin.buffer.read()) if path == STDIO else None
     if data is None and not os.path.exists(path):
         raise FileNotFoundError(f"input file {path!r} does not exist")
     where = "stdin" if data is not None else path
-    if fmt == "parquet":
+    if fmt == "parquet" and data is None and os.path.isdir(path):
+        table = _read_dataset(path, columns)
+    elif fmt == "parquet":
         import pyarrow.parquet as pq
 
         pf = pq.ParquetFile(data if data is not None else path)
@@ -163,8 +206,9 @@ def read_frame(
             column_types={c: pa.string() for c in text_columns},
         )
         parse = pc.ParseOptions(delimiter=delimiter)
+        read = pc.ReadOptions(encoding=encoding or "utf8")
         if columns is not None:  # name a missing column the way derive does
-            with pc.open_csv(data if data is not None else path, parse_options=parse) as reader:
+            with pc.open_csv(data if data is not None else path, parse_options=parse, read_options=read) as reader:
                 _require(reader.schema.names, columns, where)
             if data is not None:
                 data.seek(0)
@@ -177,10 +221,132 @@ def read_frame(
             codec = _codec(path)
             if codec is not None:
                 source = pa.CompressedInputStream(source, codec)
-            table = pc.read_csv(source, parse_options=parse, convert_options=convert)
-    frame = table.to_pandas(date_as_object=False)
+            table = pc.read_csv(source, parse_options=parse, convert_options=convert, read_options=read)
+    frame = parse_dates(table.to_pandas(date_as_object=False), dates, date_format, day_first, where, ids)
     progress.done(f"read {len(frame):,} rows, {frame.shape[1]} columns from {where}", len(frame))
     return frame
+
+
+def _read_dataset(path: str, columns: Sequence[str] | None) -> Any:
+    """A folder of Parquet files as one table (pyarrow.dataset; ``key=value`` folders become columns)."""
+    import pyarrow.dataset as ds
+
+    dataset = ds.dataset(path, format="parquet", partitioning="hive")
+    if columns is not None:
+        _require(dataset.schema.names, columns, path)
+    return dataset.to_table(columns=list(columns) if columns is not None else None)
+
+
+#: SAS formats of numeric date and datetime columns (SAS 9.4 Formats and Informats reference):
+#: values are days, or seconds, since 1960-01-01.  pandas converts them in SAS7BDAT files but
+#: leaves them as numbers in transport files.
+SAS_DATE_FORMATS = ("DATE", "DAY", "DDMMYY", "MMDDYY", "YYMMDD", "E8601DA", "IS8601DA", "B8601DA", "WEEKDATE",
+                    "WORDDATE", "MONYY", "YYMON", "YYQ", "JULIAN", "NLDATE", "MINGUO", "EURDFDD")
+SAS_DATETIME_FORMATS = ("DATETIME", "E8601DT", "IS8601DT", "B8601DT", "DATEAMPM", "NLDATM", "MDYAMPM")
+SAS_EPOCH = pd.Timestamp("1960-01-01")
+
+
+def _read_other(path: str, fmt: str, columns: Sequence[str] | None, encoding: str | None) -> pd.DataFrame:
+    """Feather / Arrow IPC through pyarrow; SAS, Stata and SPSS files through pandas' readers."""
+    if not os.path.exists(path):
+        raise FileNotFoundError(f"input file {path!r} does not exist")
+    if fmt == "feather":
+        import pyarrow.feather as feather
+
+        return feather.read_table(path).to_pandas(date_as_object=False)
+    if fmt == "stata":
+        return pd.read_stata(path)
+    if fmt == "spss":
+        try:
+            import pyreadstat  # noqa: F401 - pandas.read_spss reads through it
+        except ImportError:
+            from .errors import MissingDependencyError
+
+            raise MissingDependencyError(f"reading SPSS files ({path}) needs pyreadstat, an optional dependency: "
+                                         "pip install 'panelfx[formats]'", extra="formats") from None
+        return pd.read_spss(path, usecols=list(columns) if columns is not None else None)
+    # SAS: "infer" reads the encoding a SAS7BDAT file records; transport files record none, and
+    # are read as Latin-1 (what pandas 3 means by "infer" there; pandas 2.2 refuses "infer" for them)
+    if fmt == "sas7bdat":
+        return pd.read_sas(path, format="sas7bdat", encoding=encoding or "infer")
+    reader = pd.read_sas(path, format="xport", encoding=encoding or "latin-1", iterator=True)
+    with reader:
+        frame = reader.read()
+        # the SAS format of each variable, without its width (DATE9. -> DATE)
+        formats = {f["name"].decode("ascii", "replace").strip(): f["nform"].decode("ascii", "replace").strip()
+                   .rstrip("0123456789.").upper() for f in reader.fields}
+    for name, form in formats.items():
+        if name in frame.columns and frame[name].dtype.kind == "f":
+            if form in SAS_DATE_FORMATS:
+                frame[name] = SAS_EPOCH + pd.to_timedelta(frame[name], unit="D")
+            elif form in SAS_DATETIME_FORMATS:
+                frame[name] = SAS_EPOCH + pd.to_timedelta(frame[name], unit="s")
+    return frame
+
+
+def parse_dates(frame: pd.DataFrame, dates: Sequence[str], date_format: str | None, day_first: bool,
+                where: str, ids: Sequence[str] = ()) -> pd.DataFrame:
+    """Text in the ``dates`` columns of ``frame`` parsed as dates (see :func:`read_frame`); a copy
+    when anything changes.  Columns absent from the frame are left to the caller's checks."""
+    from .errors import ColumnTypeError, TimeTypeError
+
+    out = frame
+    for k, col in enumerate(dict.fromkeys(dates)):
+        if col not in frame.columns or not _is_text(frame[col]):
+            continue
+        text = frame[col]
+        given = text.notna() & (text.astype(str).str.strip() != "")
+        error = TimeTypeError if k == 0 else ColumnTypeError
+        if date_format is None and not day_first:
+            first = text[given].head(3).tolist()
+            raise error(f"column {col!r} of {where} holds text, not dates or numbers (first values: "
+                        f"{', '.join(map(repr, first))}): give its layout with --date-format, e.g. "
+                        f"--date-format '{DAY_FIRST_HINT}', or --day-first for day/month/year dates",
+                        column=col, count=int(given.sum()), ids=_ids_of(frame, ids, given))
+        layout = date_format
+        if layout is None:  # --day-first: the layout pandas sees in the first value, day first
+            try:
+                from pandas.tseries.api import guess_datetime_format
+            except ImportError:  # pragma: no cover - public from pandas 2.2 on; the same function before
+                from pandas._libs.tslibs.parsing import guess_datetime_format
+
+            first_value = str(text[given].iloc[0]) if given.any() else ""
+            layout = guess_datetime_format(first_value, dayfirst=True) if first_value else "%d/%m/%Y"
+            if layout is None:
+                raise error(f"column {col!r} of {where}: cannot tell the date layout of {first_value!r}: give it "
+                            f"with --date-format, e.g. --date-format '{DAY_FIRST_HINT}'", column=col,
+                            count=int(given.sum()), ids=_ids_of(frame, ids, given))
+        try:
+            parsed = pd.to_datetime(text.where(given), format=layout, errors="coerce")
+        except ValueError as err:  # a format pandas cannot use at all
+            raise error(f"--date-format {layout!r} cannot be used on column {col!r}: {err}", column=col) from None
+        bad = given & parsed.isna()
+        if bad.any():
+            option = f"--date-format '{layout}'" if date_format is not None else f"--day-first (layout {layout!r})"
+            rows = [int(i) for i in bad.to_numpy().nonzero()[0][:5]]
+            shown = ", ".join(f"{r} ({text.iloc[r]!r})" for r in rows)
+            raise error(f"column {col!r} of {where}: {int(bad.sum())} value(s) do not fit {option}; rows "
+                        f"{shown}{' ...' if bad.sum() > 5 else ''}: give the layout the file uses with "
+                        "--date-format", column=col, count=int(bad.sum()), ids=_ids_of(frame, ids, bad))
+        if out is frame:
+            out = frame.copy()
+        out[col] = parsed
+    return out
+
+
+def _is_text(column: pd.Series) -> bool:
+    if column.dtype == object:  # infer_dtype looks at the values in C, without a Python loop
+        return pd.api.types.infer_dtype(column, skipna=True) == "string"
+    return pd.api.types.is_string_dtype(column.dtype)
+
+
+def _ids_of(frame: pd.DataFrame, ids: Sequence[str], mask: pd.Series) -> list[Any]:
+    """Subject ids of the masked rows (first ones, each once), or their 0-based row numbers."""
+    if ids and all(c in frame.columns for c in ids):
+        keys = frame.loc[mask.to_numpy(), list(ids)].head(50)
+        values = keys.iloc[:, 0].tolist() if len(ids) == 1 else list(keys.itertuples(index=False, name=None))
+        return list(dict.fromkeys(values))
+    return [int(i) for i in mask.to_numpy().nonzero()[0][:5]]
 
 
 class _CountingFile(io.RawIOBase):
@@ -376,7 +542,8 @@ def _check(argv: list[str]) -> int:
     progress = Progress("check", args.quiet, summary=False)
     keys = [*args.id, args.time, *([args.order] if args.order else [])]
     frame = read_frame(args.input, args.input_format, columns=[*dict.fromkeys(keys)],
-                       text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress)
+                       text_columns=[c for c in args.text if c in (*args.id, args.time)], progress=progress,
+                       dates=[args.time], ids=args.id, **_reading(args))
     report = check(frame, id=args.id if len(args.id) > 1 else args.id[0], time=args.time,
                    spacing=args.spacing, tolerance=args.tolerance, notes=args.notes, order=args.order)
     fatal = int((report["severity"] == "fatal").sum())
@@ -415,7 +582,8 @@ def _table_option(parser: argparse.ArgumentParser) -> None:
 
 
 def _read_tables(specs: Sequence[str], derivation: Derivation, text: Sequence[str],
-                 progress: Progress, *, required: bool) -> dict[str, pd.DataFrame]:
+                 progress: Progress, *, required: bool,
+                 args: argparse.Namespace | None = None) -> dict[str, pd.DataFrame]:
     """--table NAME=PATH options: checked against the tables the derivation reads, then read."""
     given: dict[str, str] = {}
     for spec in specs:
@@ -438,14 +606,44 @@ def _read_tables(specs: Sequence[str], derivation: Derivation, text: Sequence[st
         file_format(path, None, "input")
         if not os.path.exists(path):
             raise FileNotFoundError(f"side table file {path!r} (--table {name}) does not exist")
-    return {name: read_frame(path, None, text_columns=text, progress=progress) for name, path in given.items()}
+    options = _reading(args) if args is not None else {}
+    return {name: read_frame(path, None, text_columns=text, progress=progress, ids=derivation.id_cols,
+                             dates=[t for use in derivation_uses(derivation, name) for t in (use.time, *use.ends)]
+                             + list(getattr(args, "date", [])), **options)
+            for name, path in given.items()}
+
+
+def derivation_uses(derivation: Derivation, name: str) -> list[Any]:
+    """What the transforms read from side table ``name`` (its time columns first)."""
+    return [use for tr in derivation.transforms for use in tr.tables() if use.name == name]
+
+
+def _reading(args: argparse.Namespace) -> dict[str, Any]:
+    """The reading options of :func:`_input_options` as keywords of :func:`read_frame`."""
+    if args.date_format is not None and args.day_first:
+        raise UsageError("give --date-format or --day-first, not both (the format already says where the day is)")
+    return {"date_format": args.date_format, "day_first": args.day_first, "encoding": args.encoding}
 
 
 def _input_options(parser: argparse.ArgumentParser, *, quiet: str) -> None:
     """Options every command that reads an input file shares."""
     parser.add_argument("--text", action="append", default=[], metavar="COL",
                         help="read this CSV column as text (e.g. ids with leading zeros); repeatable")
-    parser.add_argument("--input-format", choices=["csv", "parquet"])
+    parser.add_argument("--input-format", choices=INPUT_FORMATS,
+                        help="the input's format when its extension does not say (.csv .tsv .parquet or a folder of "
+                             "Parquet files, .feather .arrow, .xpt, .sas7bdat, .dta, .sav .zsav)")
+    dates = parser.add_argument_group(
+        "dates written as text", "The time column (and --date columns) may hold dates as text in a layout other "
+        "than ISO 8601 (2024-03-01), which is read as dates without options.")
+    dates.add_argument("--date-format", metavar="FMT",
+                       help="the layout of those dates in strftime codes, e.g. %%d/%%m/%%Y or '%%d%%b%%Y %%H:%%M' "
+                            "(as pandas.to_datetime(format=))")
+    dates.add_argument("--day-first", action="store_true",
+                       help="dates are day first (31/12/2024); the layout is read from the first value")
+    dates.add_argument("--date", action="append", default=[], metavar="COL",
+                       help="another column of dates written as text (besides the time column); repeatable")
+    parser.add_argument("--encoding", metavar="ENC",
+                        help="text encoding of CSV and SAS files (default: UTF-8 for CSV, the file's own for SAS)")
     parser.add_argument("-q", "--quiet", action="store_true", help=quiet)
 
 
@@ -455,7 +653,12 @@ def _apply(argv: list[str]) -> int:
     parser.add_argument("derivation", help="saved derivation (JSON, from Derivation.save)")
     parser.add_argument("input", help="CSV or Parquet file; - reads CSV from stdin")
     parser.add_argument("-o", "--output", required=True, help="output file, .parquet or .csv; - writes CSV to stdout")
-    parser.add_argument("--output-format", choices=["csv", "parquet"])
+    parser.add_argument("--output-format", choices=OUTPUT_FORMATS)
+    side = parser.add_mutually_exclusive_group()
+    side.add_argument("--dictionary", metavar="PATH",
+                      help="write the data dictionary as CSV to PATH (default beside a CSV output: "
+                           "OUT.dictionary.csv; Parquet keeps it in its metadata)")
+    side.add_argument("--no-dictionary", action="store_true", help="no data dictionary file beside a CSV output")
     _table_option(parser)
     _input_options(parser, quiet="no progress or summary on stderr")
     big = parser.add_argument_group(
@@ -471,12 +674,15 @@ def _apply(argv: list[str]) -> int:
     progress = Progress("apply", args.quiet)
     # Fail fast, before reading a large input: the derivation, the formats, the output folder.
     derivation = Derivation.load(args.derivation)
-    _refuse_overwrite(args.output, {"input": args.input, "derivation": args.derivation,
-                                    **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2]
-                                       for spec in args.table}})
+    sources = {"input": args.input, "derivation": args.derivation,
+               **{f"--table {spec.partition('=')[0]}": spec.partition("=")[2] for spec in args.table}}
+    _refuse_overwrite(args.output, sources)
     if args.input != STDIO and (os.path.isdir(args.input)
                                 or any(v is not None for v in (args.memory, args.partitions, args.row_number))
                                 or args.workers != 1):
+        if args.dictionary is not None:
+            raise UsageError(f"--dictionary: a partitioned apply keeps the data dictionary in each part's metadata "
+                             f"and in {args.output}{os.sep}_panelfx.json")
         return _apply_partitioned(derivation, args, progress)
     file_format(args.input, args.input_format or ("csv" if args.input == STDIO else None), "input")
     file_format(args.output, args.output_format or ("csv" if args.output == STDIO else None), "output")
@@ -485,14 +691,16 @@ def _apply(argv: list[str]) -> int:
     folder = os.path.dirname(os.path.abspath(args.output))
     if args.output != STDIO and not os.path.isdir(folder):
         raise FileNotFoundError(f"output folder {folder!r} does not exist")
+    sidecar = _sidecar(args, sources)
     if args.input != STDIO and file_format(args.input, args.input_format, "input") == "parquet" \
             and os.path.exists(args.input):
         import pyarrow.parquet as pq
 
         _require(pq.read_schema(args.input).names, [*derivation.id_cols, derivation.time, *derivation.inputs()],
                  args.input)
-    tables = _read_tables(args.table, derivation, args.text, progress, required=True)
-    frame = read_frame(args.input, args.input_format, text_columns=args.text, progress=progress)
+    tables = _read_tables(args.table, derivation, args.text, progress, required=True, args=args)
+    frame = read_frame(args.input, args.input_format, text_columns=args.text, progress=progress,
+                       dates=[derivation.time, *args.date], ids=derivation.id_cols, **_reading(args))
     result = derivation.apply(frame, tables)
     progress.say(f"derived {len(derivation.outputs())} column(s): {', '.join(derivation.outputs())}")
     record = {**result.attrs[ATTRS_KEY], "input": "stdin" if args.input == STDIO else os.path.basename(args.input)}
@@ -500,11 +708,81 @@ def _apply(argv: list[str]) -> int:
         record["tables"] = {name: os.path.basename(path) for name, path in
                             (spec.partition("=")[::2] for spec in args.table)}
     fields = {row["column"]: {k: v for k, v in row.items() if k != "column"} for row in record["dictionary"]}
-    write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields, progress=progress)
+
+    def write_result() -> None:
+        write_frame(result, args.output, args.output_format, metadata=record, field_metadata=fields,
+                    progress=progress)
+
+    if sidecar is None:
+        write_result()
+        return 0
+    # The dictionary's temporary file is renamed into place right after the output is: a run
+    # that fails while writing the output leaves neither changed.
+    table = dictionary_frame(record["dictionary"])
+    _sweep_stale(sidecar)
+
+    def write_both(tmp: str) -> None:
+        table.to_csv(tmp, index=False)
+        write_result()
+
+    try:
+        write_atomic(sidecar, write_both)
+    except OSError as err:
+        if str(err).startswith(f"writing {args.output} failed"):
+            raise
+        raise OSError(f"writing the data dictionary {sidecar} failed (the output {args.output} was written): "
+                      f"{' '.join(str(err.strerror or err).split())}") from err
+    progress.say(f"wrote the data dictionary ({len(table)} columns) to {sidecar}")
     return 0
 
 
-def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
+#: Name of the data dictionary written beside a CSV output ``out.csv``: ``out`` + this.
+DICTIONARY_SUFFIX = ".dictionary.csv"
+
+
+def _sidecar(args: argparse.Namespace, sources: dict[str, str]) -> str | None:
+    """The data dictionary file of this apply, checked before any work: ``--dictionary PATH``,
+    or ``OUT.dictionary.csv`` beside a CSV output (none for Parquet, stdout or --no-dictionary).
+    Like the output, it may not be a file the run reads; the default one replaces only a data
+    dictionary written earlier (its first line is the dictionary's header), never another file."""
+    if args.no_dictionary:
+        return None
+    explicit = args.dictionary is not None
+    if explicit:
+        path = args.dictionary
+        if path == STDIO:
+            raise UsageError("--dictionary needs a file name (stdout carries the output or nothing)")
+    else:
+        if args.output == STDIO or file_format(args.output, args.output_format, "output") != "csv":
+            return None
+        base = os.path.basename(args.output)
+        stem = base[: len(os.path.splitext(_base_name(base))[0])]  # out.csv.gz -> out
+        path = os.path.join(os.path.dirname(args.output), stem + DICTIONARY_SUFFIX)
+    if path == args.output or (os.path.exists(path) and os.path.exists(args.output)
+                               and os.path.samefile(path, args.output)):
+        raise UsageError(f"--dictionary {path} is the output file: give another name")
+    _refuse_overwrite(path, sources, option="--dictionary" if explicit else "the data dictionary")
+    if not explicit and os.path.exists(path) and not _is_dictionary(path):
+        raise UsageError(f"{path} exists and is not a data dictionary written by panelfx apply: refusing to "
+                         "overwrite it; remove it, or give --dictionary PATH or --no-dictionary")
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise FileNotFoundError(f"data dictionary folder {folder!r} does not exist")
+    return path
+
+
+def _is_dictionary(path: str) -> bool:
+    """The file starts with the header line of a data dictionary (so panelfx wrote it)."""
+    header = ",".join(DICTIONARY_COLUMNS)
+    try:
+        with open(path, "rb") as fh:
+            first = fh.read(len(header) + 2)
+    except OSError:
+        return False
+    return first.decode("utf-8", "replace").splitlines()[:1] == [header]
+
+
+def _refuse_overwrite(output: str, sources: dict[str, str], option: str = "-o") -> None:
     """Refuse an output that is one of the files the run reads (same file, however named):
     writing it would destroy the data the result comes from."""
     for what, path in sources.items():
@@ -515,13 +793,16 @@ def _refuse_overwrite(output: str, sources: dict[str, str]) -> None:
         except OSError:  # one of them does not exist (yet): they cannot be the same file
             continue
         if same:
-            raise UsageError(f"-o {output} is the {what} file {path}: refusing to overwrite it; "
+            raise UsageError(f"{option} {output} is the {what} file {path}: refusing to overwrite it; "
                              "write the result to another file")
 
 
 def _apply_partitioned(derivation: Derivation, args: argparse.Namespace, progress: Progress) -> int:
     from ._bigfile import apply_partitioned, parse_size
 
+    if args.date_format is not None or args.day_first or args.date:
+        raise UsageError("--date-format, --day-first and --date read dates written as text; a partitioned apply "
+                         "reads Parquet, which holds dates as dates")
     if args.table or derivation.tables():
         raise UsageError("side tables (--table) are not supported by the partitioned apply yet; for data bigger "
                          "than memory with side tables use panelfx.dask.derive(..., tables=)")
@@ -556,10 +837,11 @@ def _dictionary(argv: list[str]) -> int:
     derivation = Derivation.load(args.derivation)
     frame = None
     tables = _read_tables(args.table, derivation, args.text, Progress("dictionary", args.quiet, summary=False),
-                          required=args.input is not None)
+                          required=args.input is not None, args=args)
     if args.input is not None:
         frame = read_frame(args.input, args.input_format, text_columns=args.text,
-                           progress=Progress("dictionary", args.quiet, summary=False))
+                           progress=Progress("dictionary", args.quiet, summary=False),
+                           dates=[derivation.time, *args.date], ids=derivation.id_cols, **_reading(args))
     table = derivation.dictionary(frame, tables)
     if args.csv:
         table.to_csv(sys.stdout, index=False)

@@ -17,10 +17,12 @@ File layout (version 2)::
       "version": 2,
       "description": "...",
       "panel": {"id": "pid", "time": "day", "unit": null},
-      "transforms": [{"type": "lag", "options": {"col": "sbp", ...}}, ...]
+      "transforms": [{"type": "lag", "options": {"col": "sbp", ...}, "label": "...", "note": "..."}, ...]
     }
 
-Options left out of a file take the transform's defaults; unknown keys are errors.
+Options left out of a file take the transform's defaults; unknown keys are errors.  ``label``
+and ``note`` (see :meth:`Derivation.described`) are written only when set.  The JSON Schema
+of this layout ships as ``panelfx/derivation.schema.json`` (:meth:`Derivation.json_schema`).
 Version-1 files (before default names changed) still load, with the columns they gave
 then (:mod:`panelfx._upgrade`).
 """
@@ -54,7 +56,12 @@ FORMAT = "panelfx.derivation"
 VERSION = 2
 
 #: Columns of :meth:`Derivation.dictionary`, in order.
-DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit"]
+DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "past_only", "dtype", "time_unit",
+                      "label", "note"]
+
+#: Longest label of a transform: ADaM variable labels are at most 40 characters (the SAS V5
+#: transport limit the CDISC ADaM Implementation Guide keeps).
+LABEL_CHARS = 40
 
 #: Key of the provenance record in ``DataFrame.attrs`` (and in Parquet metadata).
 ATTRS_KEY = "panelfx"
@@ -69,9 +76,9 @@ class DerivationFileError(OptionError):
     """A saved derivation is malformed: bad JSON, wrong version, unknown key or transform,
     or an option of the wrong type.  ``path`` is where in the file (``transforms[1].options.periods``)."""
 
-    def __init__(self, message: str, *, path: str = "") -> None:
+    def __init__(self, message: str, *, path: str = "", where: str | None = None) -> None:
         super().__init__(f"{path}: {message}" if path else message, column=None)
-        self.path = path
+        self.path = path if where is None else where  # where=: the message is prefixed already
 
 
 # ---------------------------------------------------------------------------------- value
@@ -108,6 +115,10 @@ class Derivation:
     description: str
     order: str | None
     time_unit: str | None
+    # Per transform (same positions), "" for none; () when no transform has one.  Set by
+    # described(), never by the constructor, so transforms need no label options of their own.
+    labels: tuple[str, ...] = dataclasses.field(default=(), repr=False)
+    notes: tuple[str, ...] = dataclasses.field(default=(), repr=False)
 
     def __init__(
         self,
@@ -183,8 +194,59 @@ class Derivation:
                 added.extend(item.transforms)
             else:
                 added.append(item)
-        return Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
-                          description=self.description, order=self.order, time_unit=self.time_unit)
+        out = Derivation(*self.transforms, *added, id=self.id, time=self.time, unit=self.unit,
+                         description=self.description, order=self.order, time_unit=self.time_unit)
+        texts = [self._texts()]
+        texts += [item._texts() if isinstance(item, Derivation) else ([""], [""]) for item in more]
+        return out._with_texts([x for lab, _ in texts for x in lab], [x for _, note in texts for x in note])
+
+    # -------------------------------------------------------------- labels and notes
+    def described(self, column: str, *, label: str | None = None, note: str | None = None) -> Derivation:
+        """A copy with a ``label`` (short text, at most 40 characters, one line, as an ADaM
+        variable label) and/or a ``note`` (free text) on the transform that makes ``column``;
+        ``None`` keeps what is there, ``""`` removes it.  Both are shown by :meth:`dictionary`
+        (on every output of that transform), saved with the derivation and kept by ``extend``.
+
+        >>> import panelfx as pfx
+        >>> d = pfx.Derivation(pfx.baseline("sbp"), pfx.lag("sbp"), id="pid", time="day")
+        >>> d = d.described("sbp_lag1", label="Systolic BP at previous visit", note="invented example")
+        >>> d.dictionary()[["column", "label", "note"]]
+                 column                          label               note
+        0  sbp_baseline
+        1      sbp_lag1  Systolic BP at previous visit  invented example
+        """
+        step = next((i for i, tr in enumerate(self.transforms) if column in tr.outputs()), None)
+        if step is None:
+            raise OptionError(f"column {column!r} is not made by this derivation (it makes: "
+                              f"{', '.join(self.outputs()) or 'nothing'})", column=column)
+        labels, notes = self._texts()
+        if label is not None:
+            labels[step] = check_label(label)
+        if note is not None:
+            notes[step] = check_note(note)
+        return self._with_texts(labels, notes)
+
+    @staticmethod
+    def json_schema() -> dict[str, Any]:
+        """The JSON Schema (draft 2020-12) of saved derivations, generated from the transform
+        registry; the same as the file ``derivation.schema.json`` shipped in the package."""
+        from ._derivation_schema import derivation_schema
+
+        return derivation_schema()
+
+    def _texts(self) -> tuple[list[str], list[str]]:
+        n = len(self.transforms)
+        return list(self.labels or [""] * n), list(self.notes or [""] * n)
+
+    def _with_texts(self, labels: Sequence[str], notes: Sequence[str]) -> Derivation:
+        """This derivation with those labels and notes (one per transform), in the normal form."""
+        out = Derivation(*self.transforms, id=self.id, time=self.time, unit=self.unit,
+                         description=self.description, order=self.order, time_unit=self.time_unit)
+        if any(labels):
+            object.__setattr__(out, "labels", tuple(labels))
+        if any(notes):
+            object.__setattr__(out, "notes", tuple(notes))
+        return out
 
     @frames(result="added", tables="tables", passthrough=lambda f: type(f).__module__.startswith("dask."))
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
@@ -263,6 +325,7 @@ class Derivation:
     def _dictionary(self, dtypes: Mapping[str, str], time_unit: str) -> pd.DataFrame:
         rows = []
         past: dict[str, bool] = {}
+        labels, notes = self._texts()
         for step, tr in enumerate(self.transforms, start=1):
             sources = (*tr.inputs(), *(f"{u.name}.{c}" for u in tr.tables() for c in u.all_columns()))
             only_past = bool(tr.past_only) and all(past.get(c, True) for c in sources)
@@ -275,6 +338,7 @@ class Derivation:
                     "column": name, "step": step, "transform": tr.type_name, "sources": ", ".join(sources),
                     "description": words, "past_only": only_past, "dtype": dtypes.get(name),
                     "time_unit": _unit_of(kinds[k - 1], time_unit, tr),
+                    "label": labels[step - 1], "note": notes[step - 1],
                 })
         return dictionary_frame(rows)
 
@@ -298,7 +362,12 @@ class Derivation:
             path = f"transforms[{i}]"
             options = {f.name: _plain(getattr(tr, f.name), f"{path}.options.{f.name}", tr)
                        for f in dataclasses.fields(tr) if f.init}
-            doc["transforms"].append({"type": tr.type_name, "options": options})
+            entry: dict[str, Any] = {"type": tr.type_name, "options": options}
+            if self.labels and self.labels[i]:  # written only when set: files without them read as before
+                entry["label"] = self.labels[i]
+            if self.notes and self.notes[i]:
+                entry["note"] = self.notes[i]
+            doc["transforms"].append(entry)
         return doc
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -333,7 +402,7 @@ class Derivation:
         id_ = _required(panel, "id", "panel")
         if isinstance(id_, list):
             if not id_ or not all(isinstance(c, str) and c for c in id_):
-                raise DerivationFileError(f"must be a column name or a list of column names, got {id_!r}",
+                raise DerivationFileError(f"must be a column name or a list of column names, got {_short(id_)}",
                                           path="panel.id")
             id_ = tuple(id_)
         else:
@@ -341,47 +410,55 @@ class Derivation:
         time = _required(panel, "time", "panel")
         _expect(time, str, "panel.time", "must be a column name")
         unit = panel.get("unit")
-        if unit is not None and unit not in UNITS_NS:
-            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({unit!r})",
+        if unit is not None and (not isinstance(unit, str) or unit not in UNITS_NS):
+            raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(unit)} ({_short(unit)})",
                                       path="panel.unit")
         order = panel.get("order")
         if order is not None:
             _expect(order, str, "panel.order", "must be null or a column name")
         time_unit = panel.get("time_unit")
-        if time_unit is not None and time_unit not in UNITS_NS:
+        if time_unit is not None and (not isinstance(time_unit, str) or time_unit not in UNITS_NS):
             raise DerivationFileError(f"must be null or one of {sorted(UNITS_NS)}, got {_kind(time_unit)} "
-                                      f"({time_unit!r})", path="panel.time_unit")
+                                      f"({_short(time_unit)})", path="panel.time_unit")
         items = _required(doc, "transforms", "")
         _expect(items, list, "transforms", "must be a list")
         transforms = [_transform_from(item, f"transforms[{i}]") for i, item in enumerate(items)]
+        labels = [_text_from(item, "label", i, check_label) for i, item in enumerate(items)]
+        notes = [_text_from(item, "note", i, check_note) for i, item in enumerate(items)]
         try:
-            return cls(*transforms, id=id_, time=time, unit=unit, description=description, order=order,
-                       time_unit=time_unit)
+            out = cls(*transforms, id=id_, time=time, unit=unit, description=description, order=order,
+                      time_unit=time_unit)
         except PanelError as err:
             where = getattr(err, "position", None)
             raise DerivationFileError(str(err), path="panel" if where is None else f"transforms[{where}]") from None
+        return out._with_texts(labels, notes) if any(labels) or any(notes) else out
 
     @classmethod
     def from_json(cls, text: str | bytes) -> Derivation:
         """Read a saved derivation; malformed input raises :class:`DerivationFileError`
         naming the key and its path in the file."""
         if isinstance(text, bytes):
-            try:
-                text = text.decode("utf-8")
-            except UnicodeDecodeError as err:
-                raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start})") from None
+            text = _decode(text)
         if not isinstance(text, str):
             raise TypeError(f"from_json expects a str, got {type(text).__name__}")
+        # RFC 8259 section 8.1: a parser may ignore a byte order mark (Windows editors add one).
+        text = text.removeprefix("\ufeff")
         if not text.strip():
             raise DerivationFileError("the file is empty")
         try:
-            doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant)
+            doc = json.loads(text, object_pairs_hook=_unique_keys, parse_constant=_no_constant,
+                             parse_int=_parse_int, parse_float=_parse_float)
+        except RecursionError:  # nesting deeper than Python's stack: find where, without recursion
+            path, line, col = _deep_path(text)
+            raise DerivationFileError(f"nested more than {MAX_DEPTH} levels deep (at line {line}, column {col})",
+                                      path=path) from None
         except json.JSONDecodeError as err:
             # a string still open at the end of the text is reported where it starts
             cut = err.pos >= len(text.rstrip()) or err.msg.startswith("Unterminated string")
             hint = " (the file looks truncated)" if cut else ""
             raise DerivationFileError(
                 f"not valid JSON: {err.msg} at line {err.lineno}, column {err.colno}{hint}") from None
+        _check_tree(doc)
         return cls.from_dict(doc)
 
     def save(self, path: str | os.PathLike[str]) -> None:
@@ -397,7 +474,7 @@ class Derivation:
         try:
             return cls.from_json(data)
         except DerivationFileError as err:
-            raise DerivationFileError(f"{os.fspath(path)}: {err}") from None
+            raise DerivationFileError(f"{os.fspath(path)}: {err}", where=err.path) from None
 
 
 # ---------------------------------------------------------------------------------- helpers
@@ -407,7 +484,8 @@ def dictionary_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
     """The data dictionary as a frame, from its rows (also as recorded in ``attrs``)."""
     if not rows:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in DICTIONARY_COLUMNS})
-    return pd.DataFrame(list(rows), columns=DICTIONARY_COLUMNS)
+    # records written before labels and notes existed have none
+    return pd.DataFrame([{"label": "", "note": "", **row} for row in rows], columns=DICTIONARY_COLUMNS)
 
 
 def _unit_of(kind: str | None, unit: str, tr: Transform) -> str:
@@ -450,17 +528,159 @@ def _plain(value: Any, path: str, tr: Transform) -> Any:
                       f"{tr.type_name}); give a plain value such as a number or a string like '90D'")
 
 
+# ---------------------------------------------------------------------------------- parsing
+# The JSON parser's hooks never raise: what cannot be an option (NaN, a huge number, a key
+# given twice) is kept as a marker, and _check_tree then reports the first one with its path.
+
+#: Deepest nesting of objects and lists a saved derivation may have; a file needs 5 or 6.
+MAX_DEPTH = 32
+#: Most digits an integer may have (int64 holds 19); Python refuses to parse beyond 4300.
+MAX_DIGITS = 19
+#: Longest value shown in an error message.
+SHOW_CHARS = 60
+
+
+@dataclasses.dataclass(frozen=True)
+class _Unreadable:
+    """A JSON token that cannot be an option value, kept so that the error can name its path."""
+
+    text: str
+    why: str
+
+    def __repr__(self) -> str:
+        return self.text if len(self.text) <= SHOW_CHARS else f"{self.text[:20]}...{self.text[-10:]}"
+
+
+class _Duplicated(dict[str, Any]):
+    """An object in which ``key`` appears more than once (the later values are dropped)."""
+
+    key: str
+
+
 def _unique_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
-    out: dict[str, Any] = {}
-    for k, v in pairs:
-        if k in out:
-            raise DerivationFileError(f"duplicate key {k!r} in an object of the file")
-        out[k] = v
-    return out
+    out: dict[str, Any] = dict(pairs)
+    if len(out) == len(pairs):
+        return out
+    # RFC 8259 section 4: names SHOULD be unique; a second value for a key is a mistake
+    dup = _Duplicated(out)
+    seen: set[str] = set()
+    for k, _ in pairs:
+        if k in seen:
+            dup.key = k
+            break
+        seen.add(k)
+    return dup
 
 
 def _no_constant(name: str) -> Any:
-    raise DerivationFileError(f"{name} is not a JSON value")
+    return _Unreadable(name, f"{name} is not a JSON value (RFC 8259 has no NaN or Infinity): write a number or null")
+
+
+def _parse_int(text: str) -> Any:
+    if len(text.lstrip("-")) > MAX_DIGITS:
+        return _Unreadable(text, f"an integer of {len(text.lstrip('-'))} digits is too large "
+                                 f"(at most {MAX_DIGITS} digits)")
+    return int(text)
+
+
+def _parse_float(text: str) -> Any:
+    value = float(text)
+    if not math.isfinite(value):  # 1e999 would read as infinity
+        return _Unreadable(text, f"the number {_short(text)} is too large to hold (it would be infinite)")
+    return value
+
+
+def _decode(data: bytes) -> str:
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise DerivationFileError("the file is not UTF-8 text: it starts with a UTF-16 byte order mark; "
+                                  "save it as UTF-8 (RFC 8259 section 8.1)")
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as err:
+        line = data.count(b"\n", 0, err.start) + 1
+        raise DerivationFileError(f"the file is not UTF-8 text ({err.reason} at byte {err.start}, line {line}); "
+                                  "save it as UTF-8") from None
+
+
+def _check_tree(doc: Any) -> None:
+    """Refuse, with its path, the first marker left by the parser, a value nested deeper than
+    :data:`MAX_DEPTH` or a string that cannot be written as UTF-8 (an escaped lone surrogate).
+    Walks without recursion, in the order of the file."""
+    stack: list[tuple[Any, str, int]] = [(doc, "", 0)]
+    while stack:
+        value, path, depth = stack.pop()
+        if isinstance(value, _Unreadable):
+            raise DerivationFileError(value.why, path=path)
+        if isinstance(value, str):
+            _text_ok(value, path)
+        elif isinstance(value, (dict, list)):
+            if depth >= MAX_DEPTH:
+                raise DerivationFileError(f"nested more than {MAX_DEPTH} levels deep", path=path)
+            if isinstance(value, _Duplicated):
+                raise DerivationFileError(f"duplicate key {value.key!r} in an object", path=_join(path, value.key))
+            if isinstance(value, dict):
+                for k in value:
+                    _text_ok(k, _join(path, "<key>"))
+                items = [(v, _join(path, k), depth + 1) for k, v in value.items()]
+            else:
+                items = [(v, f"{path}[{i}]", depth + 1) for i, v in enumerate(value)]
+            stack.extend(reversed(items))
+
+
+def _text_ok(text: str, path: str) -> None:
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        raise DerivationFileError(f"the string {_short(text)} holds an escaped lone surrogate (\\ud800-\\udfff), "
+                                  "which is not text", path=path) from None
+
+
+def _deep_path(text: str) -> tuple[str, int, int]:
+    """Where the nesting of ``text`` first goes deeper than :data:`MAX_DEPTH`: the path, line and
+    column.  Only called when the parser ran out of stack, and stops there."""
+    stack: list[list[Any]] = []  # per open container: its bracket and the current key or index
+    key: Any = None
+    i, n = 0, len(text)
+    while i < n:
+        c = text[i]
+        if c == '"':
+            j = i + 1
+            while True:  # the closing quote is one not escaped by an odd number of backslashes
+                j = text.find('"', j)
+                if j < 0:
+                    j = n
+                    break
+                k = j
+                while text[k - 1] == "\\":
+                    k -= 1
+                if (j - k) % 2 == 0:
+                    break
+                j += 1
+            key = text[i + 1:j]
+            i = j + 1
+            continue
+        if c in "[{":
+            if len(stack) >= MAX_DEPTH:
+                break
+            stack.append([c, 0 if c == "[" else None])
+        elif c in "]}" and stack:
+            stack.pop()
+        elif c == "," and stack and stack[-1][0] == "[":
+            stack[-1][1] += 1
+        elif c == ":" and stack:
+            stack[-1][1] = key
+        i += 1
+    path = ""
+    for bracket, at in stack:
+        path = f"{path}[{at}]" if bracket == "[" else _join(path, str(at))
+    line = text.count("\n", 0, i) + 1
+    return path, line, i - (text.rfind("\n", 0, i) + 1) + 1
+
+
+def _short(value: Any) -> str:
+    """``repr`` of a value for an error message, cut to :data:`SHOW_CHARS`."""
+    text = repr(value)
+    return text if len(text) <= SHOW_CHARS else f"{text[:SHOW_CHARS - 15]} ... {text[-10:]}"
 
 
 def _kind(value: Any) -> str:
@@ -472,7 +692,7 @@ def _kind(value: Any) -> str:
 
 def _expect(value: Any, kind: type, path: str, rule: str) -> None:
     if not isinstance(value, kind):
-        raise DerivationFileError(f"{rule}, got {_kind(value)} ({value!r})" if path else
+        raise DerivationFileError(f"{rule}, got {_kind(value)} ({_short(value)})" if path else
                                   f"{rule}, got {_kind(value)}", path=path)
 
 
@@ -493,9 +713,37 @@ def _join(path: str, key: str) -> str:
     return f"{path}.{key}" if path else key
 
 
+def check_label(label: Any) -> str:
+    """A transform's label: one line of at most :data:`LABEL_CHARS` characters."""
+    if not isinstance(label, str):
+        raise OptionError(f"label must be a string, got {_kind(label)} ({_short(label)})")
+    if len(label) > LABEL_CHARS:
+        raise OptionError(f"label must be at most {LABEL_CHARS} characters (as an ADaM variable label), got "
+                          f"{len(label)}: {_short(label)}; put longer text in note=")
+    if not label.isprintable():
+        raise OptionError(f"label must be one line of printable text, got {_short(label)}")
+    return label
+
+
+def check_note(note: Any) -> str:
+    """A transform's note: any text."""
+    if not isinstance(note, str):
+        raise OptionError(f"note must be a string, got {_kind(note)} ({_short(note)})")
+    return note
+
+
+def _text_from(item: dict[str, Any], key: str, i: int, check: Any) -> str:
+    if key not in item:
+        return ""
+    try:
+        return str(check(item[key]))
+    except OptionError as err:
+        raise DerivationFileError(str(err), path=f"transforms[{i}].{key}") from None
+
+
 def _transform_from(item: Any, path: str) -> Transform:
     _expect(item, dict, path, "each transform must be an object with keys type and options")
-    _no_unknown(item, ("type", "options"), path)
+    _no_unknown(item, ("type", "options", "label", "note"), path)
     type_name = _required(item, "type", path)
     _expect(type_name, str, f"{path}.type", "must be the name of a transform")
     cls = REGISTRY.get(type_name)
@@ -529,13 +777,21 @@ def _transform_from(item: Any, path: str) -> Transform:
                                   path=f"{path}.options") from None
 
 
+#: Resolved annotations per transform class (see _hints).
+_HINTS: dict[type, dict[str, Any]] = {}
+
+
 def _hints(cls: type) -> dict[str, Any]:
     """Field annotations resolved in the transform's own module (never from the file).
-    Annotations that cannot be resolved are left to the transform's validation."""
-    try:
-        return typing.get_type_hints(cls)
-    except Exception:  # noqa: BLE001 - e.g. a name imported only for type checkers
-        return {}
+    Annotations that cannot be resolved are left to the transform's validation.
+    Resolved once per class: resolving them for every transform of a file was most of
+    the time a large file took to load."""
+    if cls not in _HINTS:
+        try:
+            _HINTS[cls] = typing.get_type_hints(cls)
+        except Exception:  # noqa: BLE001 - e.g. a name imported only for type checkers
+            _HINTS[cls] = {}
+    return _HINTS[cls]
 
 
 _NoneType = type(None)
@@ -546,7 +802,7 @@ def _convert(value: Any, hint: Any, path: str) -> Any:
     annotation says tuple (frozen transforms must stay hashable)."""
     ok, out = _match(value, hint)
     if not ok:
-        raise DerivationFileError(f"must be {_describe_hint(hint)}, got {_kind(value)} ({value!r})", path=path)
+        raise DerivationFileError(f"must be {_describe_hint(hint)}, got {_kind(value)} ({_short(value)})", path=path)
     return out
 
 

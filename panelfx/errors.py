@@ -33,6 +33,7 @@ __all__ = [
     "UnknownSubjectError",
     "UnknownOptionError",
     "FrameTypeError",
+    "MissingDependencyError",
 ]
 
 #: How many offending ids an error message shows.
@@ -166,6 +167,15 @@ class UnknownOptionError(PanelError, TypeError):
         super().__init__(message)
         self.option = option
         self.suggestions = list(suggestions)
+
+
+class MissingDependencyError(PanelError, ImportError):
+    """An optional package needed for this (a file reader, say) is not installed; the message
+    names the panelfx extra that installs it (``pip install 'panelfx[formats]'``)."""
+
+    def __init__(self, message: str, *, extra: str) -> None:
+        super().__init__(message)
+        self.extra = extra
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

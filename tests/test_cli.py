@@ -473,7 +473,7 @@ def test_stdin_and_stdout(tmp_path):
     run = _run("apply", "d.json", "visits.csv", "-o", "-", "--output-format", "parquet", cwd=tmp_path)
     assert run.returncode == 2 and run.stdout == ""
     assert run.stderr.strip() == "panelfx apply: error: -o - writes CSV to stdout; Parquet needs a file name"
-    assert sorted(os.listdir(tmp_path)) == ["d.json", "file.csv", "visits.csv"]
+    assert sorted(os.listdir(tmp_path)) == ["d.json", "file.csv", "file.dictionary.csv", "visits.csv"]
 
 
 def test_check_csv_splits_composite_ids(files, capsys):

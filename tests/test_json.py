@@ -264,8 +264,34 @@ MALFORMED = [
     ("truncated", _TEXT[: len(_TEXT) // 2], "", "not valid JSON: .* at line \\d+, column \\d+ \\(the file looks truncated\\)"),
     ("empty", "  \n", "", "the file is empty"),
     ("not an object", "[1, 2]", "", "must hold a JSON object, got a list"),
-    ("NaN", _TEXT.replace("3", "NaN"), "", "NaN is not a JSON value"),
-    ("duplicate key", _TEXT.replace('"version": 2,', '"version": 2, "version": 2,'), "", "duplicate key 'version'"),
+    ("NaN", _TEXT.replace("3", "NaN"), "transforms[2].options.reference", "NaN is not a JSON value"),
+    ("Infinity", _TEXT.replace("3", "-Infinity"), "transforms[2].options.reference", "-Infinity is not a JSON value"),
+    ("duplicate key", _TEXT.replace('"version": 2,', '"version": 2, "version": 2,'), "version", "duplicate key 'version'"),
+    ("duplicate option", _TEXT.replace('"reference": 3', '"reference": 3, "reference": 4'),
+     "transforms[2].options.reference", "duplicate key 'reference'"),
+    # Python refuses to parse integers of more than 4300 digits (a ValueError, not a JSON error)
+    ("huge integer", _TEXT.replace('"reference": 3', '"reference": ' + "9" * 5000),
+     "transforms[2].options.reference", "an integer of 5000 digits is too large"),
+    ("integer beyond int64", _TEXT.replace('"reference": 3', '"reference": ' + "1" * 25),
+     "transforms[2].options.reference", "25 digits is too large"),
+    ("number beyond float", _TEXT.replace('"reference": 3', '"reference": 1e999'),
+     "transforms[2].options.reference", "too large to hold"),
+    ("huge version", _TEXT.replace('"version": 2', '"version": ' + "1" * 30), "version", "too large"),
+    ("deep nesting", _TEXT.replace('"reference": 3', '"reference": ' + "[" * 100_000 + "]" * 100_000),
+     "transforms[2].options.reference" + "[0]" * 28, "nested more than 32 levels deep \\(at line \\d+, column \\d+\\)"),
+    ("nesting under the stack limit", _TEXT.replace('"reference": 3', '"reference": ' + "[" * 100 + "]" * 100),
+     "transforms[2].options.reference" + "[0]" * 28, "nested more than 32 levels deep$"),
+    ("deep objects in a list", _doc(_set(T0 + ["col"], [0, json.loads('{"a": ' * 40 + "1" + "}" * 40)])),
+     "transforms[0].options.col[1]" + ".a" * 27, "nested more than 32"),
+    ("lone surrogate", _TEXT.replace('"sbp"', '"\\ud800"', 1), "transforms[0].options.col", "lone surrogate"),
+    ("dict for a name", _doc(_set(T0 + ["col"], {"name": "sbp"})), "transforms[0].options.col",
+     "must be a string, got an object"),
+    ("list for a name", _doc(_set(T0 + ["col"], ["sbp"])), "transforms[0].options.col", "must be a string, got a list"),
+    ("bool for a name", _doc(_set(T0 + ["col"], True)), "transforms[0].options.col", "must be a string, got true/false"),
+    ("long value shown short", _doc(_set(T0 + ["col"], list(range(10_000)))), "transforms[0].options.col",
+     "got a list \\(\\[0, 1, 2, .{20,50} \\.\\.\\. 998, 9999\\]\\)$"),
+    ("unit a list", _doc(_set(["panel", "unit"], ["D"])), "panel.unit", "must be null or one of"),
+    ("time_unit an object", _doc(_set(["panel", "time_unit"], {})), "panel.time_unit", "must be null or one of"),
     ("no format", _doc(_drop(["format"])), "format", "not a saved panelfx derivation"),
     ("other format", _doc(_set(["format"], "something.else")), "format", "format is 'something.else'"),
     ("no version", _doc(_drop(["version"])), "version", "missing key"),
@@ -343,6 +369,30 @@ def test_bytes_and_encoding():
     assert Derivation.from_json(_TEXT.encode("utf-8")).to_dict() == _GOOD
     with pytest.raises(DerivationFileError, match="not UTF-8"):
         Derivation.from_json(b"\xff\xfe{}")
+    # UTF-16 as Windows tools write it: named as such
+    with pytest.raises(DerivationFileError, match="UTF-16 byte order mark; save it as UTF-8"):
+        Derivation.from_json(_TEXT.encode("utf-16"))
+    # a Latin-1 byte in a column name: where it is
+    latin = _TEXT.replace('"sbp"', '"sbp\u00e9"', 1).encode("latin-1")
+    at = latin.index(b"\xe9")
+    with pytest.raises(DerivationFileError, match=f"not UTF-8 text \\(invalid continuation byte at byte {at}, "
+                                                  "line \\d+\\); save it as UTF-8"):
+        Derivation.from_json(latin)
+
+
+def test_byte_order_mark_is_ignored(tmp_path):
+    """RFC 8259 section 8.1 lets a parser ignore a UTF-8 byte order mark, which Windows editors add."""
+    (tmp_path / "bom.json").write_bytes(b"\xef\xbb\xbf" + _TEXT.encode("utf-8"))
+    assert Derivation.load(tmp_path / "bom.json").to_dict() == _GOOD
+    assert Derivation.from_json("\ufeff" + _TEXT).to_dict() == _GOOD
+
+
+def test_load_error_names_file_and_path(tmp_path):
+    (tmp_path / "d.json").write_text(_doc(_set(T0 + ["periods"], "2")), encoding="utf-8")
+    with pytest.raises(DerivationFileError) as err:
+        Derivation.load(tmp_path / "d.json")
+    assert str(err.value).startswith(f"{tmp_path / 'd.json'}: transforms[0].options.periods: must be an integer")
+    assert err.value.path == "transforms[0].options.periods"
 
 
 def test_missing_column_is_reported_when_applied():
