@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ._panel import Panel
-from .errors import NotConstantError, OptionError
+from .errors import MissingDependencyError, NotConstantError, OptionError
 
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from matplotlib.axes import Axes
@@ -33,9 +33,9 @@ PROBLEM_MARKERS: dict[str, tuple[str, str, str]] = {
 def _matplotlib() -> Any:
     try:
         import matplotlib
-    except ImportError as err:  # pragma: no cover - exercised only without matplotlib
-        raise ImportError(
-            "panelfx.plot needs matplotlib, an optional dependency: pip install 'panelfx[plot]'"
+    except ImportError as err:
+        raise MissingDependencyError(
+            "panelfx.plot needs matplotlib, an optional dependency: pip install 'panelfx[plot]'", extra="plot"
         ) from err
     return matplotlib
 

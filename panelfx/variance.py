@@ -20,7 +20,7 @@ from ._nesting import CODES, Codes, check_levels, compact, level_codes, parents
 from ._options import checked_options
 from ._panel import require_columns
 from ._transform import check_choice
-from .errors import OptionError
+from .errors import MissingDependencyError, OptionError
 
 METHODS = ("anova", "reml")
 Method = Literal["anova", "reml"]
@@ -207,9 +207,9 @@ def _anova(y: np.ndarray, units: list[np.ndarray], sizes: list[int], names: list
 def _reml(y: np.ndarray, units: list[np.ndarray]) -> tuple[np.ndarray, float]:
     try:
         from statsmodels.regression.mixed_linear_model import MixedLM
-    except ImportError as err:  # pragma: no cover - exercised only without statsmodels
-        raise ImportError("method='reml' needs statsmodels, an optional dependency: "
-                          "pip install 'panelfx[models]'") from err
+    except ImportError as err:
+        raise MissingDependencyError("method='reml' needs statsmodels, an optional dependency: "
+                                     "pip install 'panelfx[models]'", extra="models") from err
     data = pd.DataFrame({"y": y, **{f"g{k}": u for k, u in enumerate(units)}})
     if len(units) == 1:
         model = MixedLM(y, np.ones((len(y), 1)), groups=units[0])

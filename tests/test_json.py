@@ -333,7 +333,7 @@ MALFORMED = [
     ("number for a name", _doc(_set(T0 + ["col"], 5)), "transforms[0].options.col", "must be a string, got an integer"),
     ("empty column name", _doc(_set(T0 + ["col"], "")), "transforms[0].options.col", "col must be a column name"),
     ("bad choice", _doc(_set(T1 + ["between"], "median")), "transforms[1].options.between",
-     "between must be one of \\['mean', 'baseline'\\], got 'median'"),
+     "must be one of 'mean', 'baseline', got a string \\('median'\\)"),
     ("names of wrong length", _doc(_set(T1 + ["names"], ["a", "b", "c"])), "transforms[1].options.names",
      "names must be two different column names"),
     ("names not a list", _doc(_set(T1 + ["names"], "ab")), "transforms[1].options.names", "got a string"),

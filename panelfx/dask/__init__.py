@@ -54,10 +54,12 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any, Literal
 
+from ..errors import MissingDependencyError
+
 try:
     import dask.dataframe as dd
-except ImportError as err:  # pragma: no cover - the extra is not installed
-    raise ImportError("panelfx.dask needs Dask: pip install 'panelfx[dask]'") from err
+except ImportError as err:
+    raise MissingDependencyError("panelfx.dask needs Dask: pip install 'panelfx[dask]'", extra="dask") from err
 import pandas as pd
 
 from .._panel import as_id_list

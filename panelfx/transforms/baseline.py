@@ -19,7 +19,7 @@ class Baseline(Transform):
 
     type_name = "baseline"
     col: str
-    rule: str = "first_valid"
+    rule: Literal["first_valid", "first", "last_before"] = "first_valid"
     reference: str | float | None = None
     where: str | None = None
     name: str | None = None

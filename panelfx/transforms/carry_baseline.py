@@ -22,7 +22,7 @@ class CarryBaseline(Transform):
 
     type_name = "carry_baseline"
     col: str
-    rule: str = "first_valid"
+    rule: Literal["first_valid", "first", "last_before"] = "first_valid"
     reference: str | float | None = None
     flag: bool = False
     name: str | None = None

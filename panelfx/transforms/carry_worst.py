@@ -22,7 +22,7 @@ class CarryWorst(Transform):
 
     type_name = "carry_worst"
     col: str
-    worst: str
+    worst: Literal["max", "min"]
     flag: bool = False
     name: str | None = None
 

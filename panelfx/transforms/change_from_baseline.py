@@ -23,8 +23,8 @@ class ChangeFromBaseline(Transform):
 
     type_name = "change_from_baseline"
     col: str
-    kind: str = "difference"
-    rule: str = "first_valid"
+    kind: Literal["difference", "percent", "ratio"] = "difference"
+    rule: Literal["first_valid", "first", "last_before"] = "first_valid"
     reference: str | float | None = None
     after_baseline_only: bool = False
     name: str | None = None

@@ -23,7 +23,7 @@ class ChangeFromPrevious(Transform):
 
     type_name = "change_from_previous"
     col: str
-    kind: str = "difference"
+    kind: Literal["difference", "percent", "rate"] = "difference"
     skip_missing: bool = False
     name: str | None = None
 

@@ -25,9 +25,9 @@ class Cumulative(Transform):
 
     type_name = "cumulative"
     col: str
-    method: str = "sum"
+    method: Literal["sum", "step", "trapezoid"] = "sum"
     restart_after: str | float | None = None
-    missing: str = "skip"
+    missing: Literal["skip", "propagate"] = "skip"
     where: str | None = None
     name: str | None = None
 

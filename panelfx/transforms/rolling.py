@@ -31,10 +31,10 @@ class Rolling(Transform):
 
     type_name = "rolling"
     col: str
-    stat: str = "mean"
+    stat: Literal["mean", "sum", "count", "min", "max", "std", "var", "median"] = "mean"
     occasions: int | None = None
     span: float | int | str | None = None
-    closed: str = "right"
+    closed: Literal["right", "both", "left", "neither"] = "right"
     min_valid: int = 1
     exclude_current: bool = False
     where: str | None = None

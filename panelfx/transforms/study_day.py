@@ -24,7 +24,7 @@ class StudyDay(Transform):
 
     type_name = "study_day"
     reference: str
-    convention: str = "no_day_0"
+    convention: Literal["no_day_0", "offset"] = "no_day_0"
     date: str | None = None
     name: str | None = None
 

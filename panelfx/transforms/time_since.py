@@ -22,7 +22,7 @@ class TimeSince(FlagHistory):
     """Configured :func:`time_since` (the flag options of :class:`FlagHistory`, plus ``which``)."""
 
     type_name = "time_since"
-    which: str = "last"
+    which: Literal["last", "first"] = "last"
 
     def __post_init__(self) -> None:
         super().__post_init__()

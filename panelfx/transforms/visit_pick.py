@@ -32,8 +32,8 @@ class VisitPick(Transform):
 
     type_name = "visit_pick"
     col: str
-    rule: str
-    prefer: str | None = None
+    rule: Literal["nearest", "first", "last", "max", "min", "last_on_or_before_target"]
+    prefer: Literal["earlier", "later"] | None = None
     visit: str = "visit_number"
     target: str = "visit_target"
     day: str | None = None

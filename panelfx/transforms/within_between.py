@@ -35,11 +35,11 @@ class WithinBetween(Transform):
 
     type_name = "within_between"
     col: str
-    between: str = "mean"
+    between: Between = "mean"
     names: tuple[str, ...] | None = None
     levels: tuple[str, ...] = ()
     fit: str | None = None
-    codes: str = "within_parent"
+    codes: Codes = "within_parent"
 
     def __post_init__(self) -> None:
         check_column_name("col", self.col)
