@@ -44,6 +44,7 @@ from .errors import (
 from .grid import grid
 from .person_time import person_time
 from .snapshot import snapshot
+from .subject_key import subject_key
 from .summary import subject_summary
 from .transforms.analysis_visit import analysis_visit
 from .transforms.as_of import as_of
@@ -119,6 +120,8 @@ __all__ = [
     "episodes",
     "person_time",
     "snapshot",
+    # models
+    "subject_key",
     # errors
     "PanelError",
     "MissingColumnError",

@@ -183,10 +183,11 @@ class Derivation:
                           description=self.description, order=self.order, time_unit=self.time_unit)
 
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
-              threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
-        """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
-        derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
-        already on the input is kept under ``"previous"``.
+              threads: int | None = None, keep: str = "all", rows: str = "input",
+              **dask_options: Any) -> pd.DataFrame:
+        """``derive(frame, *transforms, id=, time=, unit=, tables=, keep=, rows=)``, with the
+        provenance (this derivation and its data dictionary) in ``result.attrs["panelfx"]``.
+        Provenance already on the input is kept under ``"previous"``.
 
         Given a dask DataFrame, the result is a dask DataFrame, lazily (see
         :func:`panelfx.dask.apply`, which takes ``dask_options``)."""
@@ -195,15 +196,18 @@ class Derivation:
 
             if threads is not None:
                 raise OptionError("threads= does not apply to dask DataFrames: Dask's workers set the parallelism")
+            if (keep, rows) != ("all", "input"):
+                raise OptionError("keep= and rows= apply to pandas frames; on a dask frame select the columns "
+                                  "of derivation.outputs() (rows come grouped by subject after its shuffle)")
             return apply_dask(self, frame, tables=tables, **dask_options)
         if dask_options:
             raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
                               f"{type(frame).__name__}")
         out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
-                     time_unit=self.time_unit, tables=tables, threads=threads)
+                     time_unit=self.time_unit, tables=tables, threads=threads, keep=keep, rows=rows)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
-            "dictionary": _dictionary_records(self._dictionary_from_result(out)),
+            "dictionary": _dictionary_records(self._dictionary_from_result(out, frame)),
         }
         previous = frame.attrs.get(ATTRS_KEY) if isinstance(frame.attrs, dict) else None
         if previous is not None:
@@ -247,8 +251,9 @@ class Derivation:
             unit = f"{_unit_words('D')} for datetime times, else the units of {self.time!r}"
         return self._dictionary(dtypes={}, time_unit=unit)
 
-    def _dictionary_from_result(self, result: pd.DataFrame) -> pd.DataFrame:
-        kind = time_kind(key_column(result, self.time))
+    def _dictionary_from_result(self, result: pd.DataFrame, source: pd.DataFrame | None = None) -> pd.DataFrame:
+        # the time column is read from the input when given (a keep="new" result does not have it)
+        kind = time_kind(key_column(result if source is None else source, self.time))
         if kind == "number" and self.time_unit is None:
             unit = f"the units of {self.time!r}"
         else:
