@@ -34,8 +34,10 @@ from .errors import (
     NullKeyError,
     OptionError,
     PanelError,
+    PanelWarning,
     PrecisionError,
     SplitSubjectError,
+    SubsetWarning,
     TiedRecordsError,
     TimeTypeError,
     UnknownOptionError,
@@ -143,6 +145,9 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    # warnings
+    "PanelWarning",
+    "SubsetWarning",
 ]
 
 

@@ -39,6 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ._panel import UNITS_NS, as_id_list, key_column, time_kind
+from ._subset import counting
 from ._transform import REGISTRY, Transform
 from .derive import derive, plan
 from .errors import OptionError, PanelError
@@ -186,8 +187,9 @@ class Derivation:
               threads: int | None = None, keep: str = "all", rows: str = "input",
               **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=, keep=, rows=)``, with the
-        provenance (this derivation and its data dictionary) in ``result.attrs["panelfx"]``.
-        Provenance already on the input is kept under ``"previous"``.
+        provenance (this derivation, its data dictionary, and the ``rows`` and ``subjects`` of
+        the frame it was applied to) in ``result.attrs["panelfx"]``.  Provenance already on the
+        input is kept under ``"previous"``.
 
         Given a dask DataFrame, the result is a dask DataFrame, lazily (see
         :func:`panelfx.dask.apply`, which takes ``dask_options``)."""
@@ -203,11 +205,13 @@ class Derivation:
         if dask_options:
             raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
                               f"{type(frame).__name__}")
-        out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
-                     time_unit=self.time_unit, tables=tables, threads=threads, keep=keep, rows=rows)
+        with counting() as counts:
+            out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
+                         time_unit=self.time_unit, tables=tables, threads=threads, keep=keep, rows=rows)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
             "dictionary": _dictionary_records(self._dictionary_from_result(out, frame)),
+            **counts,  # rows and subjects: a later derive on a subset of this result can tell (SubsetWarning)
         }
         previous = frame.attrs.get(ATTRS_KEY) if isinstance(frame.attrs, dict) else None
         if previous is not None:

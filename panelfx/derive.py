@@ -10,6 +10,7 @@ import pandas as pd
 
 from ._columns import Deferred
 from ._panel import Panel, as_id_list
+from ._subset import after_panel
 from ._tables import check_table_uses, side_tables
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
@@ -125,6 +126,9 @@ def derive(
     appearance, each subject's rows in time order (then ``order``), index labels kept: what
     models with clusters read in row order need (statsmodels GEE's within-subject correlation).
 
+    Warns with :class:`~panelfx.SubsetWarning` when the frame is visibly a panel with rows
+    removed inside subjects (see README, "Derive on the whole panel, then split by subject").
+
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
     are needed, or an output name that already exists.
@@ -147,6 +151,7 @@ def derive(
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
     panel.tables = side_tables(panel, tables)
+    after_panel(frame, panel)
     new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")

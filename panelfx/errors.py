@@ -32,6 +32,8 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "PanelWarning",
+    "SubsetWarning",
 ]
 
 #: How many offending ids an error message shows.
@@ -160,6 +162,22 @@ class UnknownOptionError(PanelError, TypeError):
         super().__init__(message)
         self.option = option
         self.suggestions = list(suggestions)
+
+
+class PanelWarning(UserWarning):
+    """Base class of the warnings panelfx gives; silence them all with
+    ``warnings.simplefilter("ignore", panelfx.PanelWarning)``."""
+
+
+class SubsetWarning(PanelWarning):
+    """The frame given to ``derive`` looks like a subset of a panel with rows removed inside
+    subjects: lags, changes and windows then skip the removed occasions.  ``count`` is the number
+    of rows seen to be missing, ``ids`` the first few subjects they belong to (when known)."""
+
+    def __init__(self, message: str, *, count: int = 0, ids: Sequence[Any] = ()) -> None:
+        super().__init__(message)
+        self.count = count
+        self.ids = list(ids)[:SHOW_IDS]
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -44,6 +44,7 @@ def test_keep_new_on_derivation_apply_records_provenance():
     assert list(new.columns) == ["sbp_lag1", "time_since_baseline"]
     rec = new.attrs["panelfx"]
     assert rec["dictionary"] == d.apply(df).attrs["panelfx"]["dictionary"]
+    assert rec["rows"] == len(df) and rec["subjects"] == 30
 
 
 def test_keep_new_without_transforms_is_an_empty_frame_with_the_index():
