@@ -219,6 +219,19 @@ class Derivation:
         out.attrs[ATTRS_KEY] = record
         return out
 
+    # -------------------------------------------------------------- notebooks
+    def _repr_html_(self) -> str:
+        """Jupyter display: the panel declaration and the data dictionary, every cell HTML-escaped."""
+        from ._display import derivation_html
+
+        return derivation_html(self)
+
+    def _repr_markdown_(self) -> str:
+        """The same display as Markdown, for renderers without HTML."""
+        from ._display import derivation_markdown
+
+        return derivation_markdown(self)
+
     # -------------------------------------------------------------- data dictionary
     def dictionary(self, frame: pd.DataFrame | None = None,
                    tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
