@@ -31,6 +31,7 @@ from .errors import (
     MissingTableError,
     NestingError,
     NotConstantError,
+    NotPastOnlyError,
     NullKeyError,
     OptionError,
     PanelError,
@@ -145,6 +146,7 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "NotPastOnlyError",
     # warnings
     "PanelWarning",
     "SubsetWarning",

@@ -32,6 +32,7 @@ __all__ = [
     "FollowUpError",
     "UnknownSubjectError",
     "UnknownOptionError",
+    "NotPastOnlyError",
     "PanelWarning",
     "SubsetWarning",
 ]
@@ -162,6 +163,16 @@ class UnknownOptionError(PanelError, TypeError):
         super().__init__(message)
         self.option = option
         self.suggestions = list(suggestions)
+
+
+class NotPastOnlyError(OptionError):
+    """Derived features that may see a subject's later occasions were asked for where only the past
+    may be used (a prediction model).  ``column`` is the first such feature, ``columns`` all of them."""
+
+    def __init__(self, message: str, *, columns: Sequence[str]) -> None:
+        cols = list(columns)
+        super().__init__(message, column=cols[0] if cols else None, count=len(cols))
+        self.columns = cols
 
 
 class PanelWarning(UserWarning):
