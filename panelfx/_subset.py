@@ -9,9 +9,10 @@ when it can *see* that this happened, by two rules chosen for few false alarms:
    along by pandas through filtering) says the frame it came from had more rows, and the
    same number of subjects is still there (so rows went, not whole subjects);
 2. **index**: the index is integer, strictly increasing, not a ``RangeIndex`` (a default
-   index after a row filter), the frame holds two or more subjects whose runs of labels do
-   not interleave (the panel it was cut from was grouped by subject, as most files are),
-   and some subject's run has a hole: a label missing between two of its rows.
+   index after a row filter), the frame holds three or more subjects with several rows, the
+   subjects' runs of labels do not interleave (the panel it was cut from was grouped by
+   subject, as most files are), and some subject's run has a hole: a label missing between
+   two of its rows (in steps of the labels' common step: 100, 103, 106 has none).
 
 Whole subjects removed (a site, a treatment arm, a ``GroupKFold`` fold) never trip rule 2:
 each remaining subject keeps an unbroken run.  Rows dropped at the start or end of
@@ -41,6 +42,9 @@ _COUNTS: ContextVar[dict[str, int] | None] = ContextVar("panelfx_subset_counts",
 
 #: Key of the provenance record in ``DataFrame.attrs`` (as in :mod:`panelfx.derivation`).
 ATTRS_KEY = "panelfx"
+
+#: Subjects with two or more rows the index rule needs before it judges (few rows may look grouped by chance).
+MIN_RUNS = 3
 
 SILENCE = "warnings.simplefilter('ignore', pfx.SubsetWarning)"
 
@@ -101,7 +105,7 @@ def _from_provenance(frame: pd.DataFrame, panel: Any) -> SubsetWarning | None:
 
 def _from_index(frame: pd.DataFrame, panel: Any) -> SubsetWarning | None:
     index = frame.index
-    if isinstance(index, pd.RangeIndex) or isinstance(index, pd.MultiIndex) or panel.n_subjects < 2:
+    if isinstance(index, (pd.RangeIndex, pd.MultiIndex)):
         return None
     if not isinstance(index.dtype, np.dtype) or index.dtype.kind not in "iu":
         return None
@@ -110,16 +114,20 @@ def _from_index(frame: pd.DataFrame, panel: Any) -> SubsetWarning | None:
         if labels.max() > np.iinfo(np.int64).max:
             return None
         labels = labels.astype(np.int64)
-    if not bool((labels[1:] > labels[:-1]).all()):
+    steps = np.diff(labels)
+    if not bool((steps > 0).all()):
         return None  # unique and in order, as a row filter leaves a default index
-    ordered = panel.sort(labels)
     starts = panel.starts
+    if int(((panel.ends - starts) >= 2).sum()) < MIN_RUNS:
+        return None  # too few subjects with several rows to tell a grouped file from chance
+    step = int(np.gcd.reduce(steps)) if len(steps) else 1  # labels 100, 103, 106, ...: holes count in steps of 3
+    ordered = panel.sort(labels)
     low = np.minimum.reduceat(ordered, starts)
     high = np.maximum.reduceat(ordered, starts)
     by_low = np.argsort(low, kind="stable")
     if bool((high[by_low][:-1] >= low[by_low][1:]).any()):
         return None  # runs interleave: cut from a panel not grouped by subject, nothing to see
-    holes = (high - low + 1) - (panel.ends - starts)
+    holes = (high - low) // step + 1 - (panel.ends - starts)
     bad = np.flatnonzero(holes > 0)
     if len(bad) == 0:
         return None

@@ -83,18 +83,24 @@ def test_provenance_rule_sees_a_filtered_result_of_apply():
 
 def test_index_rule_details():
     """Holes between subjects are fine, a hole inside a subject's run is not; labels out of order,
-    a string index or one subject: no judgement."""
-    frame = pd.DataFrame({"pid": [1, 1, 1, 2, 2, 2], "t": [0, 1, 2, 0, 1, 2], "x": np.arange(6.0)})
+    a string index, a common step other than 1, or fewer than three subjects with several rows
+    (which may look grouped by chance): no judgement."""
+    frame = pd.DataFrame({"pid": np.repeat([1, 2, 3], 3), "t": np.tile([0, 1, 2], 3), "x": np.arange(9.0)})
     run = lambda f: pfx.derive(f, pfx.lag("x"), id="pid", time="t")  # noqa: E731
-    run(frame.set_axis(pd.Index([0, 1, 2, 5, 6, 7])))  # whole runs, hole between subjects
+    run(frame.set_axis(pd.Index([0, 1, 2, 5, 6, 7, 9, 10, 11])))  # whole runs, holes between subjects
     with pytest.warns(pfx.SubsetWarning, match=r"1 subject\(s\).*\(1 labels missing.*first ids: \[2\]"):
-        run(frame.set_axis(pd.Index([0, 1, 2, 4, 6, 7])))
-    run(frame.set_axis(pd.Index([7, 6, 4, 2, 1, 0])))  # decreasing: not a filtered default index
-    run(frame.set_axis(pd.Index(["a", "b", "c", "e", "f", "g"])))
-    run(frame.set_axis(pd.Index([0, 3, 1, 4, 2, 6])).sort_index())  # interleaved runs: silent
-    run(frame.iloc[:3].set_axis(pd.Index([0, 2, 5])))  # one subject: silent
-    with pytest.warns(pfx.SubsetWarning):
-        run(frame.set_axis(pd.Index(np.array([0, 1, 3, 4, 5, 6], dtype=np.uint32))))
+        run(frame.set_axis(pd.Index([0, 1, 2, 4, 6, 7, 8, 9, 10])))
+    with pytest.warns(pfx.SubsetWarning, match=r"2 subject\(s\).*\(2 labels missing.*first ids: \[2, 3\]"):
+        run(frame.set_axis(pd.Index(np.array([0, 1, 2, 3, 4, 6, 7, 9, 10], dtype=np.uint32))))
+    run(frame.set_axis(pd.Index([10, 9, 8, 6, 4, 3, 2, 1, 0])))  # decreasing: not a filtered default index
+    run(frame.set_axis(pd.Index(list("abcdefghk"))))
+    run(frame.set_axis(pd.Index([100, 103, 106, 109, 112, 115, 118, 121, 124])))  # a step of 3: no hole
+    with pytest.warns(pfx.SubsetWarning, match=r"\(1 labels missing"):
+        run(frame.set_axis(pd.Index([100, 103, 106, 109, 115, 118, 121, 124, 127])))
+    run(frame.set_axis(pd.Index([0, 3, 6, 1, 4, 7, 2, 5, 9])).sort_index())  # interleaved runs: silent
+    run(frame.iloc[:6].set_axis(pd.Index([0, 2, 3, 5, 6, 7])))  # two subjects with several rows: silent
+    run(pd.concat([frame.iloc[:6], frame.iloc[6:].assign(pid=[3, 4, 5])]).set_axis(
+        pd.Index([0, 2, 3, 5, 6, 7, 8, 9, 10])))  # the third has one row each: silent
 
 
 def test_panelfx_own_cuts_do_not_warn():
