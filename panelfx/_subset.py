@@ -120,14 +120,17 @@ def _from_index(frame: pd.DataFrame, panel: Any) -> SubsetWarning | None:
     starts = panel.starts
     if int(((panel.ends - starts) >= 2).sum()) < MIN_RUNS:
         return None  # too few subjects with several rows to tell a grouped file from chance
-    step = int(np.gcd.reduce(steps)) if len(steps) else 1  # labels 100, 103, 106, ...: holes count in steps of 3
     ordered = panel.sort(labels)
     low = np.minimum.reduceat(ordered, starts)
     high = np.maximum.reduceat(ordered, starts)
     by_low = np.argsort(low, kind="stable")
     if bool((high[by_low][:-1] >= low[by_low][1:]).any()):
         return None  # runs interleave: cut from a panel not grouped by subject, nothing to see
-    holes = (high - low) // step + 1 - (panel.ends - starts)
+    lengths = panel.ends - starts
+    if not bool((high - low + 1 > lengths).any()):
+        return None  # no hole even in steps of 1 (the common case: the common step is not computed)
+    step = int(np.gcd.reduce(steps))  # labels 100, 103, 106, ...: holes count in steps of 3
+    holes = (high - low) // step + 1 - lengths
     bad = np.flatnonzero(holes > 0)
     if len(bad) == 0:
         return None
