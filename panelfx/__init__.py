@@ -34,11 +34,14 @@ from .errors import (
     MissingTableError,
     NestingError,
     NotConstantError,
+    NotPastOnlyError,
     NullKeyError,
     OptionError,
     PanelError,
+    PanelWarning,
     PrecisionError,
     SplitSubjectError,
+    SubsetWarning,
     TiedRecordsError,
     TimeTypeError,
     UnknownOptionError,
@@ -47,6 +50,7 @@ from .errors import (
 from .grid import grid
 from .person_time import person_time
 from .snapshot import snapshot
+from .subject_key import subject_key
 from .summary import subject_summary
 from .transforms.analysis_visit import analysis_visit
 from .transforms.as_of import as_of
@@ -122,6 +126,8 @@ __all__ = [
     "episodes",
     "person_time",
     "snapshot",
+    # models
+    "subject_key",
     # errors
     "PanelError",
     "MissingColumnError",
@@ -147,6 +153,10 @@ __all__ = [
     # frames from other libraries
     "to_pandas",
     "MissingDependencyError",
+    "NotPastOnlyError",
+    # warnings
+    "PanelWarning",
+    "SubsetWarning",
 ]
 
 

@@ -44,6 +44,7 @@ import pandas as pd
 
 from ._frames import frames, to_pandas
 from ._panel import UNITS_NS, as_id_list, key_column, time_kind
+from ._subset import counting
 from ._transform import REGISTRY, Transform
 from ._upgrade import upgrade_v1
 from .derive import derive, plan
@@ -250,10 +251,12 @@ class Derivation:
 
     @frames(result="added", tables="tables", passthrough=lambda f: type(f).__module__.startswith("dask."))
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
-              threads: int | None = None, **dask_options: Any) -> pd.DataFrame:
-        """``derive(frame, *transforms, id=, time=, unit=, tables=)``, with the provenance (this
-        derivation and its data dictionary) in ``result.attrs["panelfx"]``.  Provenance
-        already on the input is kept under ``"previous"``.
+              threads: int | None = None, keep: str = "all", rows: str = "input",
+              **dask_options: Any) -> pd.DataFrame:
+        """``derive(frame, *transforms, id=, time=, unit=, tables=, keep=, rows=)``, with the
+        provenance (this derivation, its data dictionary, and the ``rows`` and ``subjects`` of
+        the frame it was applied to) in ``result.attrs["panelfx"]``.  Provenance already on the
+        input is kept under ``"previous"``.
 
         Given a dask DataFrame, the result is a dask DataFrame, lazily (see
         :func:`panelfx.dask.apply`, which takes ``dask_options``)."""
@@ -262,21 +265,39 @@ class Derivation:
 
             if threads is not None:
                 raise OptionError("threads= does not apply to dask DataFrames: Dask's workers set the parallelism")
+            if (keep, rows) != ("all", "input"):
+                raise OptionError("keep= and rows= apply to pandas frames; on a dask frame select the columns "
+                                  "of derivation.outputs() (rows come grouped by subject after its shuffle)")
             return apply_dask(self, frame, tables=tables, **dask_options)
         if dask_options:
             raise OptionError(f"options {sorted(dask_options)} apply to dask DataFrames only, got a "
                               f"{type(frame).__name__}")
-        out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
-                     time_unit=self.time_unit, tables=tables, threads=threads)
+        with counting() as counts:
+            out = derive(frame, *self.transforms, id=self.id, time=self.time, unit=self.unit, order=self.order,
+                         time_unit=self.time_unit, tables=tables, threads=threads, keep=keep, rows=rows)
         record: dict[str, Any] = {
             "derivation": self.to_dict(),
-            "dictionary": _dictionary_records(self._dictionary_from_result(out)),
+            "dictionary": _dictionary_records(self._dictionary_from_result(out, frame)),
+            **counts,  # rows and subjects: a later derive on a subset of this result can tell (SubsetWarning)
         }
         previous = frame.attrs.get(ATTRS_KEY) if isinstance(frame.attrs, dict) else None
         if previous is not None:
             record["previous"] = previous
         out.attrs[ATTRS_KEY] = record
         return out
+
+    # -------------------------------------------------------------- notebooks
+    def _repr_html_(self) -> str:
+        """Jupyter display: the panel declaration and the data dictionary, every cell HTML-escaped."""
+        from ._display import derivation_html
+
+        return derivation_html(self)
+
+    def _repr_markdown_(self) -> str:
+        """The same display as Markdown, for renderers without HTML."""
+        from ._display import derivation_markdown
+
+        return derivation_markdown(self)
 
     # -------------------------------------------------------------- data dictionary
     def dictionary(self, frame: pd.DataFrame | None = None,
@@ -314,8 +335,9 @@ class Derivation:
             unit = f"{_unit_words('D')} for datetime times, else the units of {self.time!r}"
         return self._dictionary(dtypes={}, time_unit=unit)
 
-    def _dictionary_from_result(self, result: pd.DataFrame) -> pd.DataFrame:
-        kind = time_kind(key_column(result, self.time))
+    def _dictionary_from_result(self, result: pd.DataFrame, source: pd.DataFrame | None = None) -> pd.DataFrame:
+        # the time column is read from the input when given (a keep="new" result does not have it)
+        kind = time_kind(key_column(result if source is None else source, self.time))
         if kind == "number" and self.time_unit is None:
             unit = f"the units of {self.time!r}"
         else:

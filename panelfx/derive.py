@@ -13,6 +13,7 @@ from ._columns import Deferred
 from ._frames import frames
 from ._options import checked_options
 from ._panel import Panel, as_id_list
+from ._subset import after_panel
 from ._tables import check_table_uses, side_tables
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
@@ -107,6 +108,8 @@ def derive(
     time_unit: str | None = None,
     tables: Mapping[str, pd.DataFrame] | None = None,
     threads: int | None = None,
+    keep: str = "all",
+    rows: str = "input",
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -137,6 +140,14 @@ def derive(
     many threads (default 1: on the benchmark two threads did not pay off).  The results
     are the same bit for bit whatever the number.
 
+    ``keep="new"`` returns the derived columns only (same index and rows; default ``"all"``).
+    ``rows="by_subject"`` returns the rows grouped by subject, subjects in order of first
+    appearance, each subject's rows in time order (then ``order``), index labels kept: what
+    models with clusters read in row order need (statsmodels GEE's within-subject correlation).
+
+    Warns with :class:`~panelfx.SubsetWarning` when the frame is visibly a panel with rows
+    removed inside subjects (see README, "Derive on the whole panel, then split by subject").
+
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
     are needed, or an output name that already exists.
@@ -152,9 +163,12 @@ def derive(
     """
     # the transform list and the options are checked before any O(n log n) work
     workers = _threads(threads)
+    _choice("keep", keep, KEEP)
+    _choice("rows", rows, ROWS)
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
     panel.tables = side_tables(panel, tables)
+    after_panel(frame, panel)
     new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
@@ -172,7 +186,24 @@ def derive(
             plain.append(raw)
         arrays[k] = a
     added = pd.DataFrame(arrays, index=frame.index, copy=False)
-    return pd.concat([frame, added], axis=1) if new else frame.copy()
+    if keep == "new":
+        out = added
+    else:
+        out = pd.concat([frame, added], axis=1) if new else frame.copy()
+    perm = panel.ordering.order  # None when the rows already come by subject in time order
+    if rows == "by_subject" and perm is not None:
+        out = out.iloc[perm]
+    return out
+
+
+#: Values of ``derive(keep=)`` and ``derive(rows=)``.
+KEEP = ("all", "new")
+ROWS = ("input", "by_subject")
+
+
+def _choice(option: str, value: object, allowed: tuple[str, ...]) -> None:
+    if not isinstance(value, str) or value not in allowed:
+        raise OptionError(f"{option} must be one of {', '.join(map(repr, allowed))}, got {value!r}", column=None)
 
 
 def table_columns(tables: Mapping[str, Any] | None) -> dict[str, list[str]]:

@@ -34,6 +34,9 @@ __all__ = [
     "UnknownOptionError",
     "FrameTypeError",
     "MissingDependencyError",
+    "NotPastOnlyError",
+    "PanelWarning",
+    "SubsetWarning",
 ]
 
 #: How many offending ids an error message shows.
@@ -176,6 +179,32 @@ class MissingDependencyError(PanelError, ImportError):
     def __init__(self, message: str, *, extra: str) -> None:
         super().__init__(message)
         self.extra = extra
+
+
+class NotPastOnlyError(OptionError):
+    """Derived features that may see a subject's later occasions were asked for where only the past
+    may be used (a prediction model).  ``column`` is the first such feature, ``columns`` all of them."""
+
+    def __init__(self, message: str, *, columns: Sequence[str]) -> None:
+        cols = list(columns)
+        super().__init__(message, column=cols[0] if cols else None, count=len(cols))
+        self.columns = cols
+
+
+class PanelWarning(UserWarning):
+    """Base class of the warnings panelfx gives; silence them all with
+    ``warnings.simplefilter("ignore", panelfx.PanelWarning)``."""
+
+
+class SubsetWarning(PanelWarning):
+    """The frame given to ``derive`` looks like a subset of a panel with rows removed inside
+    subjects: lags, changes and windows then skip the removed occasions.  ``count`` is the number
+    of rows seen to be missing, ``ids`` the first few subjects they belong to (when known)."""
+
+    def __init__(self, message: str, *, count: int = 0, ids: Sequence[Any] = ()) -> None:
+        super().__init__(message)
+        self.count = count
+        self.ids = list(ids)[:SHOW_IDS]
 
 
 def rows_message(what: str, column: str | None, count: int, ids: Sequence[Any], noun: str = "ids") -> str:

@@ -18,7 +18,8 @@ WALKTHROUGH = NOTEBOOKS / "walkthrough.ipynb"
 
 
 def test_notebook_is_stored_without_outputs():
-    code = check_stored_clean(WALKTHROUGH, ("pfx.Derivation(", ".save(", "Derivation.load("))
+    code = check_stored_clean(WALKTHROUGH, ("pfx.Derivation(", ".save(", "Derivation.load(", "pfx.subject_key(",
+                                            "rows=\"by_subject\""))
     assert len(code) >= 8
 
 
@@ -35,6 +36,8 @@ def test_notebook_runs_without_error(executed):
     assert "INVENTED DATA" in text
     for problem in ("missed", "late", "early"):
         assert problem in text
+    # the derivation displayed itself as HTML (panel and dictionary)
+    assert any("panelfx-derivation" in o.get("data", {}).get("text/html", "") for c in code for o in c.outputs)
     # the figures cell drew a picture
     assert any("image/png" in o.get("data", {}) for c in code for o in c.outputs)
 

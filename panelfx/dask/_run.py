@@ -14,6 +14,7 @@ from typing import Any
 import pandas as pd
 
 from .._schema import conform
+from .._subset import quiet
 from ..derivation import Derivation
 from ..derive import derive as _derive
 from ..errors import PanelError
@@ -31,8 +32,9 @@ def parse(spec: str) -> Derivation:
 def derive_spec(frame: pd.DataFrame, spec: str, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
     """``panelfx.derive`` with the transforms and panel of the saved derivation ``spec``."""
     d = parse(spec)
-    return _derive(frame, *d.transforms, id=d.id, time=d.time, unit=d.unit, order=d.order, time_unit=d.time_unit,
-                   tables=dict(tables) if tables else None)
+    with quiet():  # a partition holds whole subjects: no rows were removed inside them
+        return _derive(frame, *d.transforms, id=d.id, time=d.time, unit=d.unit, order=d.order,
+                       time_unit=d.time_unit, tables=dict(tables) if tables else None)
 
 
 def check_part(frame: pd.DataFrame, **options: Any) -> pd.DataFrame:
