@@ -3,7 +3,7 @@
 Registered when :mod:`panelfx` is imported.  Every method delegates to the function of
 the same name, so the results are identical:
 
-- ``df.pfx.derive(*transforms, id=, time=, unit=, tables=)`` is :func:`panelfx.derive`;
+- ``df.pfx.derive(*transforms, id=, time=, ...)`` is :func:`panelfx.derive`, every option included;
 - ``df.pfx.check(id=, time=, ...)`` is :func:`panelfx.check`;
 - ``df.pfx.apply(derivation)`` is :meth:`panelfx.Derivation.apply` (a derivation, or
   the path of a saved one);
@@ -44,12 +44,12 @@ class PanelAccessor:
     def __init__(self, frame: pd.DataFrame) -> None:
         self._frame = frame
 
-    def derive(self, *transforms: Transform, id: str | Sequence[str], time: str,
-               unit: str | None = None, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
-        """:func:`panelfx.derive` on this frame."""
+    def derive(self, *transforms: Transform, id: str | Sequence[str], time: str, **options: Any) -> pd.DataFrame:
+        """:func:`panelfx.derive` on this frame, with the same options (``unit=``, ``order=``,
+        ``time_unit=``, ``tables=``, ``keep=``, ``rows=``, ``threads=``)."""
         from .derive import derive
 
-        return derive(self._frame, *transforms, id=id, time=time, unit=unit, tables=tables)
+        return derive(self._frame, *transforms, id=id, time=time, **options)
 
     def check(self, *, id: str | Sequence[str], time: str, spacing: Any = None, tolerance: Any = None,
               notes: bool = False, **plan: Any) -> pd.DataFrame:
@@ -58,8 +58,9 @@ class PanelAccessor:
 
         return check(self._frame, id=id, time=time, spacing=spacing, tolerance=tolerance, notes=notes, **plan)
 
-    def apply(self, derivation: Any, tables: Mapping[str, pd.DataFrame] | None = None) -> pd.DataFrame:
-        """Apply a :class:`~panelfx.Derivation` (or the path of a saved one) to this frame."""
+    def apply(self, derivation: Any, tables: Mapping[str, pd.DataFrame] | None = None, **options: Any) -> pd.DataFrame:
+        """Apply a :class:`~panelfx.Derivation` (or the path of a saved one) to this frame, with the
+        options of :meth:`~panelfx.Derivation.apply` (``keep=``, ``rows=``, ``threads=``)."""
         from .derivation import Derivation
 
         if isinstance(derivation, (str, os.PathLike)):
@@ -67,7 +68,7 @@ class PanelAccessor:
         if not isinstance(derivation, Derivation):
             raise OptionError(f"apply needs a panelfx.Derivation or the path of a saved one, "
                               f"got {type(derivation).__name__}")
-        return derivation.apply(self._frame, tables)
+        return derivation.apply(self._frame, tables, **options)
 
     @property
     def provenance(self) -> dict[str, Any]:

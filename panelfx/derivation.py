@@ -251,7 +251,8 @@ class Derivation:
 
     @frames(result="added", tables="tables", passthrough=lambda f: type(f).__module__.startswith("dask."))
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
-              threads: int | None = None, keep: str = "all", rows: str = "input",
+              threads: int | None = None, keep: Literal["all", "new"] = "all",
+              rows: Literal["input", "by_subject"] = "input",
               **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=, keep=, rows=)``, with the
         provenance (this derivation, its data dictionary, and the ``rows`` and ``subjects`` of

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import bisect
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
@@ -108,8 +108,8 @@ def derive(
     time_unit: str | None = None,
     tables: Mapping[str, pd.DataFrame] | None = None,
     threads: int | None = None,
-    keep: str = "all",
-    rows: str = "input",
+    keep: Literal["all", "new"] = "all",
+    rows: Literal["input", "by_subject"] = "input",
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 

@@ -46,3 +46,18 @@ def test_errors():
         _frame().pfx.dictionary()
     with pytest.raises(pfx.OptionError, match="needs a panelfx.Derivation"):
         _frame().pfx.apply(pfx.lag("sbp"))
+
+
+def test_every_option_passes_through():
+    """The accessor takes derive's and apply's options (keep=, rows=, order=, unit=, ...) and
+    refuses an unknown one with derive's typed hint."""
+    df = _frame().assign(seq=[1, 1, 1, 1])
+    trs = (pfx.lag("sbp"), pfx.gap())
+    for options in ({"keep": "new"}, {"rows": "by_subject"}, {"order": "seq"}, {"time_unit": "D", "unit": "W"}):
+        pd.testing.assert_frame_equal(df.pfx.derive(*trs, id="pid", time="day", **options),
+                                      pfx.derive(df, *trs, id="pid", time="day", **options))
+    d = pfx.Derivation(*trs, id="pid", time="day")
+    pd.testing.assert_frame_equal(df.pfx.apply(d, keep="new", rows="by_subject"),
+                                  d.apply(df, keep="new", rows="by_subject"))
+    with pytest.raises(pfx.UnknownOptionError, match="derive\\(\\) has no option groupby="):
+        df.pfx.derive(*trs, id="pid", time="day", groupby="pid")
