@@ -12,8 +12,9 @@
 The format follows the extension unless ``--input-format`` / ``--output-format`` say
 otherwise.  Read: CSV (``.csv``, ``.csv.gz``, ``.tsv``) and Parquet (``.parquet``, ``.pq``, or a
 folder of Parquet files with hive partitions) and Feather / Arrow IPC (``.feather``,
-``.arrow``) through pyarrow; SAS transport (``.xpt``) and SAS7BDAT, Stata (``.dta``) and SPSS
-(``.sav``, ``.zsav``; needs ``panelfx[formats]``) through pandas' readers.  Written: CSV or
+``.arrow``) through pyarrow; SAS transport (``.xpt``) and SAS7BDAT through pandas; ``.dta``
+and ``.sav`` / ``.zsav`` (the native files of two common statistics packages; needs
+``panelfx[formats]``) through pyreadstat.  Written: CSV or
 Parquet; a CSV output gets its data dictionary beside it (``out.dictionary.csv``).  Dates
 written as text in another layout than ISO 8601 are read with ``--date-format`` or
 ``--day-first``.  Progress and a summary go to stderr, the report and the dictionary to stdout.
@@ -62,9 +63,9 @@ SHOW_FINDINGS = 100
 STDIO = "-"
 FORMATS = {".csv": "csv", ".tsv": "csv", ".txt": "csv", ".parquet": "parquet", ".pq": "parquet",
            ".feather": "feather", ".arrow": "feather", ".ipc": "feather",
-           ".xpt": "xport", ".sas7bdat": "sas7bdat", ".dta": "stata", ".sav": "spss", ".zsav": "spss"}
+           ".xpt": "xport", ".sas7bdat": "sas7bdat", ".dta": "dta", ".sav": "sav", ".zsav": "sav"}
 #: What can be read (``--input-format``) and written (``--output-format``).
-INPUT_FORMATS = ["csv", "parquet", "feather", "xport", "sas7bdat", "stata", "spss"]
+INPUT_FORMATS = ["csv", "parquet", "feather", "xport", "sas7bdat", "dta", "sav"]
 OUTPUT_FORMATS = ["csv", "parquet"]
 COMPRESSED = (".gz", ".bz2", ".zst", ".lz4")
 #: Layouts tried by ``--day-first`` when no ``--date-format`` is given (pandas guesses from the first value).
@@ -147,9 +148,9 @@ def read_frame(
 ) -> pd.DataFrame:
     """Read a data file into pandas (dates as datetime64): CSV, Parquet (a file, or a folder of
     files with hive partitions ``key=value/``) and Feather / Arrow IPC through pyarrow; SAS
-    transport (.xpt) and SAS7BDAT through ``pandas.read_sas``, Stata (.dta) through
-    ``pandas.read_stata``, SPSS (.sav, .zsav) through ``pandas.read_spss`` (needs pyreadstat:
-    ``pip install 'panelfx[formats]'``).  The format follows the extension unless ``fmt`` is given.
+    transport (.xpt) and SAS7BDAT through ``pandas.read_sas``; .dta and .sav/.zsav (the native
+    files of two common statistics packages) through pyreadstat (``pip install 'panelfx[formats]'``).
+    The format follows the extension unless ``fmt`` is given.
 
     ``columns`` reads only those; ``text_columns`` keeps CSV columns as text (ids such as
     "007" would otherwise become numbers).  ``dates`` are the columns that must hold dates
@@ -247,24 +248,26 @@ SAS_EPOCH = pd.Timestamp("1960-01-01")
 
 
 def _read_other(path: str, fmt: str, columns: Sequence[str] | None, encoding: str | None) -> pd.DataFrame:
-    """Feather / Arrow IPC through pyarrow; SAS, Stata and SPSS files through pandas' readers."""
+    """Feather / Arrow IPC through pyarrow; SAS files through pandas; .dta and .sav/.zsav files (the
+    native files of two common statistics packages) through pyreadstat."""
     if not os.path.exists(path):
         raise FileNotFoundError(f"input file {path!r} does not exist")
     if fmt == "feather":
         import pyarrow.feather as feather
 
         return feather.read_table(path).to_pandas(date_as_object=False)
-    if fmt == "stata":
-        return pd.read_stata(path)
-    if fmt == "spss":
+    if fmt in ("dta", "sav"):
         try:
-            import pyreadstat  # noqa: F401 - pandas.read_spss reads through it
+            import pyreadstat
         except ImportError:
             from .errors import MissingDependencyError
 
-            raise MissingDependencyError(f"reading SPSS files ({path}) needs pyreadstat, an optional dependency: "
+            raise MissingDependencyError(f"reading .{fmt} files ({path}) needs pyreadstat, an optional dependency: "
                                          "pip install 'panelfx[formats]'", extra="formats") from None
-        return pd.read_spss(path, usecols=list(columns) if columns is not None else None)
+        read = pyreadstat.read_dta if fmt == "dta" else pyreadstat.read_sav
+        frame, _ = read(path, usecols=list(columns) if columns is not None else None,
+                        dates_as_pandas_datetime=True, encoding=encoding, output_format="pandas")
+        return frame
     # SAS: "infer" reads the encoding a SAS7BDAT file records; transport files record none, and
     # are read as Latin-1 (what pandas 3 means by "infer" there; pandas 2.2 refuses "infer" for them)
     if fmt == "sas7bdat":
