@@ -93,10 +93,11 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
     """Running sum within subject: bit for bit ``s = 0.0; s += v`` over the subject's rows in float64.
 
     Sequential addition in time order, exactly as a loop over one subject's rows would
-    do it, so a subject's sums never depend on other subjects or on the row order.
-    Subjects are laid out as columns of a matrix (one matrix per length class, padding at
-    most doubles the cells) and summed down the columns by ``np.cumsum(axis=0)``: one
-    vectorised pass per length class.
+    do it, so a subject's sums never depend on other subjects or on the row order.  The
+    rows are laid out in a buffer (:attr:`Subjects.scan <panelfx._subjects.Subjects.scan>`,
+    made once per set of boundaries) where one vectorised add extends the sums of many
+    subjects by one position (short subjects) or one ``np.cumsum`` sums a matrix of long
+    subjects along its rows.
 
     Overflow: where a running sum overflows float64 although every value added is finite,
     the subject's later sums are carried scaled by 2**-80 and scaled back, so a later sum
@@ -112,35 +113,19 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
 
 
 def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
-    out = np.empty(s.n)
     if s.n == 0:
-        return out
-    lengths = s.lengths
-    if int(lengths.max()) == 1:
-        out[:] = v
-        return out
-    # One flat buffer holding a matrix per length class (subjects of 2**(k-1) < length <= 2**k),
-    # a subject per matrix row, so a subject's rows are contiguous there; padding at most doubles
-    # the cells.  Each matrix is summed along its rows: sequential, per subject.
-    cls = np.frexp(np.maximum(lengths - 1, 0))[1]
-    counts = np.bincount(cls)
-    region = np.cumsum(counts * (1 << np.arange(len(counts))))  # end of each class's matrix
-    base = np.empty(len(lengths), dtype=np.int64)
-    for c in np.flatnonzero(counts).tolist():
-        members = np.flatnonzero(cls == c)  # subject order within the class
-        base[members] = region[c] - counts[c] * (1 << c) + np.arange(len(members)) * (1 << c)
-    index = base[s.grp]
-    index += s.pos
-    flat = np.zeros(int(region[-1]))
-    flat[index] = v
-    at = 0
-    for k in range(len(counts)):
-        cells = int(counts[k]) << k
-        if counts[k] and k:
-            block = flat[at: at + cells].reshape(int(counts[k]), 1 << k)
-            np.cumsum(block, axis=1, out=block)
-        at += cells
-    return flat[index]
+        return np.empty(0)
+    lay = s.scan  # shared by every running sum over these subjects
+    # Cells beyond a long subject's last row are never read back, and each subject's sums use
+    # only its own earlier cells, so the buffer needs no zero fill.
+    flat = np.empty(lay.cells)
+    flat[lay.index] = v
+    for prev, cur, width in lay.steps:  # one add per position of the short subjects
+        np.add(flat[prev: prev + width], flat[cur: cur + width], out=flat[cur: cur + width])
+    for first, rows, row_len in lay.blocks:  # long subjects: sequential sums along matrix rows
+        block = flat[first: first + rows * row_len].reshape(rows, row_len)
+        np.cumsum(block, axis=1, out=block)
+    return flat[lay.index]
 
 
 def _rescue_overflow(s: Subjects, v: np.ndarray, out: np.ndarray) -> None:
