@@ -23,8 +23,8 @@ from ._subjects import Subjects
 _SCALE_DOWN = 2.0**-80
 _SCALE_UP = 2.0**80
 
-SEARCH_PATHS = ("offset", "rank", "merge", "searchsorted")
-#: Tests force a search path (key "offset" or "rank"; lookup "merge" or "searchsorted").
+SEARCH_PATHS = ("offset", "rank", "packed", "merge", "searchsorted")
+#: Tests force a search path (key "offset" or "rank"; lookup "packed", "merge" or "searchsorted").
 FORCED_SEARCH: ContextVar[tuple[str, ...]] = ContextVar("panelfx_forced_search", default=())
 
 
@@ -203,19 +203,36 @@ def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarra
 def _lookup(key: np.ndarray, query: np.ndarray) -> np.ndarray:
     """First position of the sorted ``key`` >= each query (``np.searchsorted`` side left).
 
-    When the queries are sorted too, one stable sort of queries-then-keys merges the two
-    runs in O(n), about three times faster than a binary search per query: a key equal to
-    a query lands after it, so a query's rank minus the queries before it counts the keys
-    below it.
+    When the queries are sorted too, one sort of the two sorted runs merges them in O(n),
+    about three times faster than a binary search per query.  "packed": each value doubled,
+    keys marked by the low bit, so that a key equal to a query sorts after it; a query's
+    position minus the queries before it counts the keys below it.  Values are sorted, not
+    positions (no index array; equal values are interchangeable, so stability does not
+    matter).  "merge": the same with a stable argsort of queries-then-keys, for values that
+    do not fit the packing (and for unsorted queries, when forced).
     """
     forced = FORCED_SEARCH.get()
     m = len(query)
-    if "searchsorted" in forced or ("merge" not in forced and (query[1:] < query[:-1]).any()):
+    if m == 0:
+        return np.zeros(0, dtype=np.int64)
+    ordered = not (query[1:] < query[:-1]).any()
+    if "searchsorted" in forced or not (ordered or "merge" in forced or "packed" in forced):
         return np.searchsorted(key, query, side="left")
+    if ordered and "merge" not in forced and (not len(key) or (key[0] >= 0 and key[-1] < 2**62)) \
+            and query[0] >= 0 and query[-1] < 2**62:
+        both = np.empty(m + len(key), dtype=np.int64)
+        np.left_shift(query, 1, out=both[:m])
+        np.left_shift(key, 1, out=both[m:])
+        both[m:] |= 1
+        both.sort(kind="stable")  # two sorted runs: one merge
+        np.bitwise_and(both, 1, out=both)
+        at = np.flatnonzero(both == 0)
+        at -= np.arange(m)
+        return at
     order = np.argsort(np.concatenate([query, key]), kind="stable")
     at = np.flatnonzero(order < m)
     at -= np.arange(m)
-    if (query[1:] >= query[:-1]).all():
+    if ordered:
         return at
     out = np.empty(m, dtype=np.int64)
     out[order[order < m]] = at

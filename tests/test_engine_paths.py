@@ -20,7 +20,7 @@ from panelfx._panel import Panel
 from panelfx._subjects import Subjects
 
 ORDERINGS = ["identity", "by_value", "packed", "ranked", "lexsort"]
-SEARCHES = [(), ("rank",), ("merge",), ("searchsorted",), ("rank", "searchsorted")]
+SEARCHES = [(), ("rank",), ("packed",), ("merge",), ("searchsorted",), ("rank", "searchsorted"), ("rank", "merge")]
 
 
 @contextlib.contextmanager
@@ -139,9 +139,24 @@ def test_unsorted_queries_are_answered_in_place():
     key = np.array([1, 3, 3, 7], dtype=np.int64)
     q = np.array([7, 0, 3, 8, 2], dtype=np.int64)
     want = np.searchsorted(key, q, side="left")  # numpy as the reference
-    for paths in [(), ("merge",), ("searchsorted",)]:
+    for paths in [(), ("packed",), ("merge",), ("searchsorted",)]:
         with search(paths):
             assert K._lookup(key, q).tolist() == want.tolist()
+
+
+@pytest.mark.parametrize("paths", [(), ("packed",), ("merge",), ("searchsorted",)])
+def test_sorted_queries_every_lookup(paths):
+    """Sorted queries with repeats, equal to keys, below and above them all, and near 2**62 (past
+    the packing: merged by argsort instead)."""
+    rng = np.random.default_rng(11)
+    key = np.sort(rng.integers(0, 50, 300))
+    q = np.sort(np.concatenate([rng.integers(-3, 55, 200), key[:20], [0, 0, 49, 60]]))
+    big = np.array([2**62 - 5, 2**62 + 3, 2**62 + 3], dtype=np.int64)
+    with search(paths):
+        for k, qq in [(key, q), (key, np.maximum(q, 0)), (np.append(key, big), np.append(q, big[::-1][:2])),
+                      (key[:0], np.maximum(q, 0)), (key, q[:0])]:
+            qq = np.sort(qq)
+            assert K._lookup(k, qq).tolist() == np.searchsorted(k, qq, side="left").tolist()  # numpy as reference
 
 
 # ---------------------------------------------------------------------- probe shortcuts
