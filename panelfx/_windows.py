@@ -72,7 +72,10 @@ class Bounds:
 
     ``end`` is 0 when the window ends at the current occasion and 1 when it ends just
     before it, so that ``hi = i + 1 - end``; -1 when the ends are irregular (an open right
-    end that also leaves out tied rows at the current time).
+    end that also leaves out tied rows at the current time).  ``aligned``: window i belongs
+    to sorted row i of the same rows and ``hi = i + 1 - end`` holds (as :func:`bounds`
+    makes them; windows of panel rows over a side table's records are not), so kernels may
+    read the window ends as shifted slices instead of gathering them.
     """
 
     lo: np.ndarray
@@ -80,6 +83,7 @@ class Bounds:
     length: np.ndarray
     end: int
     width: int  # the longest window
+    aligned: bool = False
 
 
 def bounds(
@@ -115,7 +119,7 @@ def bounds(
     else:
         lo = s.first
     length = hi - lo
-    return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0)
+    return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0, aligned=end >= 0)
 
 
 # ---------------------------------------------------------------------- count, sum
@@ -123,10 +127,12 @@ def count(b: Bounds, mask: np.ndarray) -> np.ndarray:
     """Number of rows of each window where ``mask`` holds (int64, exact)."""
     if mask.all():
         return b.length.astype(np.int64, copy=True)
-    if b.width <= DIRECT_MAX:
-        return _direct(b, mask.astype(np.int64), np.add, 0).astype(np.int64)
-    c = np.zeros(mask.size + 1, dtype=np.int64)
+    # Integer prefix sums are exact: one difference per row, whatever the window's length.
+    c = np.empty(mask.size + 1, dtype=np.int64)
+    c[0] = 0
     np.cumsum(mask, out=c[1:])
+    if b.aligned:  # hi = i + 1 - end: a slice, not a gather
+        return c[1 - b.end: mask.size + 1 - b.end] - c[b.lo]
     return c[b.hi] - c[b.lo]
 
 
@@ -145,9 +151,18 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
         if over.size:  # an overflow on the way: add again, scaled
             out[over] = padded_apply(v0, b, over, _sum_of_rows)
         return out
-    out = _total_by_prefix(s, b, v0)
+    out = _total_by_prefix(s, b, v0, b.aligned)
     # Short windows are always added directly, whatever other rows' windows are, so that a
     # row's sum never depends on the other subjects (the same path, to the last bit).
+    if b.aligned:
+        # every row's direct sum over its last DIRECT_MAX rows, the prefix result beyond
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = _direct(b, v0, np.add, 0.0, depth=DIRECT_MAX, beyond=out)
+        over = np.flatnonzero(~np.isfinite(out))
+        over = over[b.length[over] <= DIRECT_MAX]  # an overflow on the way: add again, scaled
+        if over.size:
+            out[over] = padded_apply(v0, b, over, _sum_of_rows)
+        return out
     short = np.flatnonzero((b.length <= DIRECT_MAX) & (b.length > 0))
     if short.size:
         with np.errstate(over="ignore", invalid="ignore"):
@@ -162,8 +177,11 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
     return out
 
 
-def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
-    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly."""
+def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray, long_only: bool = False) -> np.ndarray:
+    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly.
+
+    ``long_only``: the caller replaces windows of at most :data:`DIRECT_MAX` rows, so only
+    longer ones at risk are added directly here."""
     prefix = K.cumsum(s, v0)
     top, bottom = _prefix_ends(s, b, prefix)
     # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
@@ -177,6 +195,8 @@ def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
     del top
     with np.errstate(invalid="ignore"):
         redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
+    if long_only:
+        redo = redo[b.length[redo] > DIRECT_MAX]
     del bound
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
@@ -193,6 +213,8 @@ def _prefix_ends(s: Subjects, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray
     if s.n:
         before[1:] = prefix[:-1]
         before[s.starts] = 0.0
+    if b.aligned and b.end == 0:  # hi - 1 = i: the prefix itself
+        return prefix, before[b.lo]
     return prefix[np.maximum(b.hi - 1, 0)], before[b.lo]
 
 
@@ -207,8 +229,11 @@ def _rounding(s: Subjects, b: Bounds, magnitude_top: np.ndarray | None, v: np.nd
     if magnitude_top is None:
         run = K.cumsum(s, np.abs(v))
         magnitude_top = run[np.maximum(b.hi - 1, 0)]
-    k = (s.pos[np.maximum(b.hi - 1, 0)] + 2).astype(np.float64) if s.n else np.zeros(0)
-    return 2 * _EPS * k * magnitude_top
+    last = s.pos if b.aligned and b.end == 0 else s.pos[np.maximum(b.hi - 1, 0)]
+    k = np.add(last, 2, dtype=np.float64) if s.n else np.zeros(0)  # exact: positions are far below 2**53
+    k *= 2 * _EPS
+    k *= magnitude_top
+    return k
 
 
 def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -221,22 +246,54 @@ def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
     return out
 
 
-def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np.ndarray:
-    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length."""
+def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int,
+            depth: int | None = None, beyond: np.ndarray | None = None) -> np.ndarray:
+    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length.
+
+    ``depth``: only the offsets d < depth; windows longer than that take ``beyond`` (their
+    result from another path) or, without it, a partial reduction for the caller to replace.
+    """
     n = v.size
-    out = np.full(n, start, dtype=np.result_type(v.dtype, type(start)))
+    dtype = np.result_type(v.dtype, type(start))
+    reach_max = b.width if depth is None else min(b.width, depth)
     if b.end < 0:  # irregular ends: gather each offset
-        for d in range(b.width):
+        out = np.full(n, start, dtype=dtype)
+        for d in range(reach_max):
             reach = b.length > d
             ufunc(out, v[np.maximum(b.hi - 1 - d, 0)], out=out, where=reach)
+        if beyond is not None:
+            np.copyto(out, beyond, where=b.length > reach_max)
         return out
-    for d in range(b.width):
-        s = b.end + d
-        if s >= n:
-            break
-        # in place where the window reaches back d rows (half the passes of np.where)
-        ufunc(out[s:], v[: n - s], out=out[s:], where=b.length[s:] > d)
+    # Row i's window ends at v[i - end]: the running reductions over the last 1, 2, ... rows
+    # are shifted slices of each other.  A block of rows keeps them all (row 0: the empty
+    # window), and each row picks the one of its own length by one gather: plain vectorised
+    # passes, not masked ones (a ufunc with a data-dependent where= runs about twenty times
+    # slower).  Blocks of _BLOCK rows keep that matrix in the cache.
+    out = np.empty(n, dtype=dtype)
+    top = reach_max + (beyond is not None)
+    step = min(_BLOCK, max(n, 1))
+    grid = np.empty((top + 1, step), dtype=dtype)
+    grid[0] = start
+    flat = grid.reshape(-1)
+    cols = np.arange(step)
+    for a in range(0, n, step):
+        z = min(a + step, n)
+        m = z - a
+        for d in range(reach_max):
+            s = b.end + d
+            k = min(max(s - a, 0), m)  # rows before k reach before row 0: never picked at this depth
+            ufunc(grid[d, k:m], v[a + k - s: z - s], out=grid[d + 1, k:m])
+        if beyond is not None:
+            grid[top, :m] = beyond[a:z]
+        pick = np.minimum(b.length[a:z], top)
+        pick *= step
+        pick += cols[:m]
+        np.take(flat, pick, out=out[a:z])
     return out
+
+
+#: Rows per block of :func:`_direct` (a few matrices of this many values stay in the cache).
+_BLOCK = 1 << 15
 
 
 # ---------------------------------------------------------------------- var, std

@@ -204,3 +204,54 @@ def test_unsigned_ids_beyond_int64():
     df = pd.DataFrame({"id": np.array([big, 3, big], dtype=np.uint64), "t": [1, 0, 0], "y": [1.0, 2.0, 3.0]})
     out = pfx.derive(df, pfx.lag("y"), id="id", time="t")
     assert out["y_lag1"].tolist()[0] == 3.0 and np.isnan(out["y_lag1"].tolist()[2])
+
+
+# ---------------------------------------------------------------------- short windows in row blocks
+def newest_first_sum(y: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Plain loop: 0.0, then the window's values from its last row back to its first (the order
+    the direct kernel adds them in), non-missing values only."""
+    out = np.zeros(len(lo))
+    for i in range(len(lo)):
+        total = 0.0
+        for j in range(hi[i] - 1, lo[i] - 1, -1):
+            if not np.isnan(y[j]):
+                total += float(y[j])
+        out[i] = total
+    return out
+
+
+@pytest.mark.parametrize("block", [1, 2, 3, 5, 64, 1 << 15])
+def test_direct_windows_in_any_block_of_rows(block, monkeypatch):
+    """Short windows are reduced in blocks of rows (windows reach back across block edges):
+    the same bits for every block size, and the same as a plain loop."""
+    from panelfx import _windows as W
+
+    rng = np.random.default_rng(13)
+    n = 400
+    df = pd.DataFrame({"id": np.repeat(np.arange(40), 10), "t": np.tile(np.arange(10) * 3, 40),
+                       "y": rng.normal(size=n) * 10.0 ** rng.integers(-9, 9, n)})
+    df.loc[rng.random(n) < 0.2, "y"] = np.nan
+    steps = [pfx.rolling("y", "sum", occasions=4, name="s4"),
+             pfx.rolling("y", "sum", occasions=3, exclude_current=True, name="s3x"),
+             pfx.rolling("y", "sum", span=20, name="s20"),  # up to 7 rows: short ones direct, longer by prefix
+             pfx.rolling("y", "max", occasions=3, name="m3"), pfx.rolling("y", "count", occasions=2, name="c2")]
+    monkeypatch.setattr(W, "_BLOCK", 1 << 15)
+    want = pfx.derive(df, *steps, id="id", time="t")
+    monkeypatch.setattr(W, "_BLOCK", block)
+    got = pfx.derive(df, *steps, id="id", time="t")
+    pd.testing.assert_frame_equal(got, want, check_exact=True)
+    y = df["y"].to_numpy()
+    i = np.arange(n)
+    first = i - i % 10
+
+    def same(col: str, lo: np.ndarray, hi: np.ndarray, rows: np.ndarray | None = None) -> None:
+        want = newest_first_sum(y, lo, hi)
+        want[newest_first_sum(~np.isnan(y) * 1.0, lo, hi) == 0] = np.nan  # no value: missing
+        rows = np.ones(n, dtype=bool) if rows is None else rows
+        assert np.array_equal(got[col].to_numpy()[rows], want[rows], equal_nan=True), col
+
+    same("s4", np.maximum(first, i - 3), i + 1)
+    same("s3x", np.maximum(first, i - 3), i)
+    same("s20", np.maximum(first, i - 6), i + 1, rows=i - np.maximum(first, i - 6) + 1 <= 4)  # the direct ones
+    assert np.array_equal(got["m3"].to_numpy(), pd.Series(y).groupby(first).rolling(3, min_periods=1).max()
+                          .to_numpy(), equal_nan=True)  # pandas as the reference
