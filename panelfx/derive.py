@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -11,6 +12,7 @@ import pandas as pd
 from ._columns import Deferred
 from ._panel import Panel, as_id_list
 from ._tables import check_table_uses, side_tables
+from ._threads import run_all, using
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
@@ -136,9 +138,10 @@ def derive(
     # the transform list and the options are checked before any O(n log n) work
     workers = _threads(threads)
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
-    panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
-    panel.tables = side_tables(panel, tables)
-    new = compute_all(panel, transforms, workers)
+    with using(workers):
+        panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
+        panel.tables = side_tables(panel, tables)
+        new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
     # One concatenation (a column at a time fragments the frame).  The derived arrays are our
@@ -183,10 +186,12 @@ def compute_all(panel: Panel, transforms: Sequence[Transform], threads: int | No
     workers = _threads(threads)
     for stage in _stages(transforms):
         if workers > 1 and len(stage) > 1:
-            from concurrent.futures import ThreadPoolExecutor
-
-            with ThreadPoolExecutor(max_workers=min(workers, len(stage))) as pool:
-                done = list(pool.map(lambda i: _run_one(panel, transforms, i), stage))
+            # the costliest first, so that the last one to start is a short one
+            by_cost = sorted(stage, key=lambda i: -_COST.get(transforms[i].type_name, 1))
+            with using(workers):
+                results = run_all([functools.partial(_run_one, panel, transforms, i) for i in by_cost])
+            made = dict(zip(by_cost, results))
+            done = [made[i] for i in stage]
         else:
             done = [_run_one(panel, transforms, i) for i in stage]
         for outputs in done:  # registered in transform order, once the stage is complete
@@ -215,6 +220,11 @@ def _run_one(panel: Panel, transforms: Sequence[Transform], i: int) -> list[tupl
             v = panel.ordering.unsort(np.asarray(v))
         done.append((name, v))
     return done
+
+
+#: Rough relative cost of a transform type, only to start costly ones first on several threads.
+_COST = {"rolling": 4, "table_window": 4, "exposure": 4, "as_of": 3, "cumulative": 2, "time_since": 2,
+         "events_so_far": 2, "carry_forward": 2}
 
 
 def _stages(transforms: Sequence[Transform]) -> list[list[int]]:

@@ -255,3 +255,36 @@ def test_direct_windows_in_any_block_of_rows(block, monkeypatch):
     same("s20", np.maximum(first, i - 6), i + 1, rows=i - np.maximum(first, i - 6) + 1 <= 4)  # the direct ones
     assert np.array_equal(got["m3"].to_numpy(), pd.Series(y).groupby(first).rolling(3, min_periods=1).max()
                           .to_numpy(), equal_nan=True)  # pandas as the reference
+
+
+# ---------------------------------------------------------------------- threads
+def test_two_thread_sort_gives_the_one_thread_order(monkeypatch):
+    """The packed key sorted in two halves side by side, then merged: the same permutation."""
+    from panelfx import _threads
+
+    monkeypatch.setattr(_order, "PARALLEL_SORT_MIN", 2)
+    rng = np.random.default_rng(14)
+    for trial in range(40):
+        df = random_frame(rng, trial)
+        want = Panel(df, id="id", time="t", strict=False)
+        with _threads.using(2):
+            got = Panel(df, id="id", time="t", strict=False)
+        assert got.ordering.strategy == want.ordering.strategy
+        assert (got.ordering.order is None) == (want.ordering.order is None)
+        if want.ordering.order is not None:
+            assert np.array_equal(got.ordering.order, want.ordering.order), trial
+    key = rng.permutation(1000).astype(np.int64)
+    with _threads.using(2):
+        _order.sort_unique(key)
+    assert key.tolist() == list(range(1000))
+
+
+def test_forcing_switches_hold_on_worker_threads():
+    """Transforms on worker threads see the caller's forced paths (each task runs in a copy of
+    the caller's context)."""
+    from panelfx import _threads
+
+    seen = []
+    with search(("rank", "searchsorted")), _threads.using(2):
+        _threads.run_all([lambda: seen.append(K.FORCED_SEARCH.get()) for _ in range(4)])
+    assert seen == [("rank", "searchsorted")] * 4
