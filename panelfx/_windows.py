@@ -102,10 +102,9 @@ def bounds(
     within a subject, so an open right end simply leaves the current occasion out.
     """
     s = p.subjects
-    i = np.arange(p.n)
     open_right = span is not None and closed in ("left", "neither")
     end = 1 if exclude_current or open_right else 0
-    hi = i + 1 - end
+    hi = np.arange(1 - end, p.n + 1 - end)
     if open_right and p.has_ties:
         # [t - s, t) leaves out every row at time t, tied rows earlier in the order too
         hi = np.minimum(hi, p.first_at_or_after(p.axis.key))
@@ -251,7 +250,8 @@ def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int,
     """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length.
 
     ``depth``: only the offsets d < depth; windows longer than that take ``beyond`` (their
-    result from another path) or, without it, a partial reduction for the caller to replace.
+    result from another path; overwritten with the result where the ends are regular) or,
+    without it, a partial reduction for the caller to replace.
     """
     n = v.size
     dtype = np.result_type(v.dtype, type(start))
@@ -269,7 +269,8 @@ def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int,
     # window), and each row picks the one of its own length by one gather: plain vectorised
     # passes, not masked ones (a ufunc with a data-dependent where= runs about twenty times
     # slower).  Blocks of _BLOCK rows keep that matrix in the cache.
-    out = np.empty(n, dtype=dtype)
+    # each block of beyond is copied into the grid before the block's results are written
+    out = np.empty(n, dtype=dtype) if beyond is None else beyond
     top = reach_max + (beyond is not None)
     step = min(_BLOCK, max(n, 1))
     grid = np.empty((top + 1, step), dtype=dtype)
