@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
+import os
 from collections.abc import Callable, Iterator, Sequence
 from typing import TypeVar
 
@@ -18,6 +19,32 @@ T = TypeVar("T")
 
 #: Threads the current ``derive`` call may use (1: everything on the calling thread).
 WORKERS: contextvars.ContextVar[int] = contextvars.ContextVar("panelfx_workers", default=1)
+
+
+#: Fewer rows than this run on one thread by default (starting threads costs more than it saves).
+AUTO_MIN_ROWS = 1_000_000
+
+
+def default_workers(rows: int) -> int:
+    """Threads for ``derive(threads=None)``: two when the panel is large and a core is free.
+
+    A second thread pays only on an idle core: on a machine whose cores are all busy (load
+    average at or above the usable cores minus one) it competes with the other work and the
+    job was measured slower, so one thread is used then (see benchmarks/README.md).
+    """
+    if rows < AUTO_MIN_ROWS:
+        return 1
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not on Linux
+        cores = os.cpu_count() or 1
+    if cores < 2:
+        return 1
+    try:
+        load = os.getloadavg()[0]
+    except OSError:  # pragma: no cover - not available
+        return 1
+    return 2 if load <= cores - 1 else 1
 
 
 @contextlib.contextmanager

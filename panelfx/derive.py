@@ -12,7 +12,7 @@ import pandas as pd
 from ._columns import Deferred
 from ._panel import Panel, as_id_list
 from ._tables import check_table_uses, side_tables
-from ._threads import run_all, using
+from ._threads import default_workers, run_all, using
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
@@ -116,9 +116,11 @@ def derive(
     :func:`~panelfx.exposure`); each carries the id columns under the same names, and is
     validated and ordered once for all transforms.
 
-    ``threads``: transforms that do not read each other's outputs run side by side on this
-    many threads (default 1: on the benchmark two threads did not pay off).  The results
-    are the same bit for bit whatever the number.
+    ``threads``: the sort of the rows is split, and transforms that do not read each other's
+    outputs run side by side, on this many threads.  Default: two for panels of a million
+    rows or more when a core is free (the load average leaves one idle), else one; a second
+    thread competing with other work on a busy machine was measured slower.  The results are
+    the same bit for bit whatever the number.
 
     Raises :class:`~panelfx.PanelError` subclasses on bad input: a missing column, a
     missing id or time, duplicate (id, time), a time column of text, text where numbers
@@ -136,7 +138,7 @@ def derive(
     if not isinstance(frame, pd.DataFrame):
         raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     # the transform list and the options are checked before any O(n log n) work
-    workers = _threads(threads)
+    workers = _threads(threads, len(frame))
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     with using(workers):
         panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
@@ -183,7 +185,7 @@ def compute_all(panel: Panel, transforms: Sequence[Transform], threads: int | No
     """
     frame = panel.frame
     new: dict[str, pd.Series] = {}
-    workers = _threads(threads)
+    workers = _threads(threads, panel.n)
     for stage in _stages(transforms):
         if workers > 1 and len(stage) > 1:
             # the costliest first, so that the last one to start is a short one
@@ -241,11 +243,11 @@ def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
     return stages
 
 
-def _threads(threads: int | None) -> int:
-    """Threads to use: ``None`` for the default, 1 (on the benchmark two threads were slower
-    than one for the shuffled job: see benchmarks/README.md)."""
+def _threads(threads: int | None, rows: int = 0) -> int:
+    """Threads to use: ``None`` for the default (two for large panels when a core is free,
+    see :func:`panelfx._threads.default_workers`), else a positive integer."""
     if threads is None:
-        return 1
+        return default_workers(rows)
     if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
         raise OptionError(f"threads must be a positive integer or None, got {threads!r}")
     return threads

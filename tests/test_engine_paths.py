@@ -288,3 +288,18 @@ def test_forcing_switches_hold_on_worker_threads():
     with search(("rank", "searchsorted")), _threads.using(2):
         _threads.run_all([lambda: seen.append(K.FORCED_SEARCH.get()) for _ in range(4)])
     assert seen == [("rank", "searchsorted")] * 4
+
+
+def test_default_threads_follow_size_and_free_cores(monkeypatch):
+    """Two threads by default only for large panels with a core to spare (results do not depend on it)."""
+    from panelfx import _threads
+
+    monkeypatch.setattr(_threads.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (0.3, 0.3, 0.3))
+    assert _threads.default_workers(10) == 1
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 2
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (1.7, 1.0, 1.0))  # both cores busy
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (0.0, 0.0, 0.0))
+    monkeypatch.setattr(_threads.os, "sched_getaffinity", lambda pid: {0}, raising=False)
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1
