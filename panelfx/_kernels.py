@@ -178,10 +178,10 @@ def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
 
 
 def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarray,
-                      grp: np.ndarray | None = None) -> np.ndarray:
+                      grp: np.ndarray | None = None, scratch: bool = False) -> np.ndarray:
     """Per query i in subject ``grp[i]`` (default: row i's own subject): the first row j of that
     subject with ``tkey[j] >= q[i]``, or the subject's end when there is none.  Exact: integer
-    comparisons only."""
+    comparisons only.  ``scratch``: ``q`` is the caller's temporary and may be overwritten."""
     g = s.grp if grp is None else grp
     if len(q) == 0:
         return np.zeros(0, dtype=np.int64)
@@ -190,13 +190,16 @@ def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarra
         first = sk.first[g]
         # q below the subject's first time: its first row; beyond first + width - 1: past its last
         # row, the subject's end (its keys stay below first + width - 1)
-        rel = np.maximum(q, first)
+        rel = np.maximum(q, first, out=q if scratch else None)
         rel -= first
         np.minimum(rel.view(np.uint64), sk.width - 1, out=rel.view(np.uint64))  # q - first may pass int64
+        block = np.multiply(g, sk.width, out=first)  # first is no longer needed: its memory serves
     else:
         assert sk.distinct is not None
         rel = np.searchsorted(sk.distinct, q, side="left").astype(np.int64)
-    rel += g * sk.width
+        block = g * sk.width
+    rel += block
+    del block
     return _lookup(sk.key, rel)
 
 
@@ -226,9 +229,9 @@ def _lookup(key: np.ndarray, query: np.ndarray) -> np.ndarray:
         both[m:] |= 1
         both.sort(kind="stable")  # two sorted runs: one merge
         np.bitwise_and(both, 1, out=both)
-        at = np.flatnonzero(both == 0)
-        at -= np.arange(m)
-        return at
+        is_query = both == 0
+        np.cumsum(both, out=both)  # keys so far: at a query, the keys below it
+        return both[is_query]
     order = np.argsort(np.concatenate([query, key]), kind="stable")
     at = np.flatnonzero(order < m)
     at -= np.arange(m)

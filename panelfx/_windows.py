@@ -79,11 +79,19 @@ class Bounds:
     """
 
     lo: np.ndarray
-    hi: np.ndarray
+    stop: np.ndarray | None  # hi, or None when aligned: then hi = i + 1 - end, made on demand
     length: np.ndarray
     end: int
     width: int  # the longest window
     aligned: bool = False
+
+    @property
+    def hi(self) -> np.ndarray:
+        """One past the window's last row, per row (aligned windows keep no copy: 8 bytes a row
+        less while a transform runs)."""
+        if self.stop is not None:
+            return self.stop
+        return np.arange(1 - self.end, len(self.lo) + 1 - self.end)
 
 
 def bounds(
@@ -104,6 +112,10 @@ def bounds(
     s = p.subjects
     open_right = span is not None and closed in ("left", "neither")
     end = 1 if exclude_current or open_right else 0
+    first_after = None
+    if occasions is None and span is not None:  # before hi exists: the search's temporaries peak here
+        # first occasion at or after t - span ([ closed left end) or after it (open)
+        first_after = p.first_at_or_after(p.axis.back(span, strict=closed not in ("both", "left")), scratch=True)
     hi = np.arange(1 - end, p.n + 1 - end)
     if open_right and p.has_ties:
         # [t - s, t) leaves out every row at time t, tied rows earlier in the order too
@@ -111,14 +123,14 @@ def bounds(
         end = -1
     if occasions is not None:
         lo = np.maximum(s.first, hi - occasions)
-    elif span is not None:
-        # first occasion at or after t - span ([ closed left end) or after it (open)
-        lo = p.first_at_or_after(p.axis.back(span, strict=closed not in ("both", "left")))
-        lo = np.minimum(lo, hi)
+    elif first_after is not None:
+        lo = np.minimum(first_after, hi, out=first_after)
     else:
         lo = s.first
     length = hi - lo
-    return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0, aligned=end >= 0)
+    aligned = end >= 0
+    return Bounds(lo=lo, stop=None if aligned else hi, length=length, end=end,
+                  width=int(length.max()) if p.n else 0, aligned=aligned)
 
 
 # ---------------------------------------------------------------------- count, sum
@@ -131,7 +143,8 @@ def count(b: Bounds, mask: np.ndarray) -> np.ndarray:
     c[0] = 0
     np.cumsum(mask, out=c[1:])
     if b.aligned:  # hi = i + 1 - end: a slice, not a gather
-        return c[1 - b.end: mask.size + 1 - b.end] - c[b.lo]
+        below = c[b.lo]
+        return np.subtract(c[1 - b.end: mask.size + 1 - b.end], below, out=below)
     return c[b.hi] - c[b.lo]
 
 
@@ -187,16 +200,20 @@ def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray, long_only: bool = F
     nonneg = not v0.size or v0.min() >= 0
     del prefix  # arrays of n floats are freed or reused as soon as possible: memory peaks here
     with np.errstate(invalid="ignore", over="ignore"):
-        out = top - bottom
+        out = np.subtract(top, bottom, out=bottom)
     del bottom
     out[b.length == 0] = 0.0
-    bound = _rounding(s, b, top if nonneg else None, v0)
+    if nonneg and b.aligned and b.end == 0:
+        # the same test as below, a block of rows at a time: no temporaries of n values
+        redo = _at_risk(s, b, out, top, DIRECT_MAX if long_only else 0)
+    else:
+        bound = _rounding(s, b, top if nonneg else None, v0)
+        with np.errstate(invalid="ignore"):
+            redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
+        if long_only:
+            redo = redo[b.length[redo] > DIRECT_MAX]
+        del bound
     del top
-    with np.errstate(invalid="ignore"):
-        redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
-    if long_only:
-        redo = redo[b.length[redo] > DIRECT_MAX]
-    del bound
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
         nz = count(b, v0 != 0)
@@ -205,9 +222,42 @@ def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray, long_only: bool = F
     return out
 
 
+def _at_risk(s: Subjects, b: Bounds, out: np.ndarray, top: np.ndarray, longer: int) -> np.ndarray:
+    """Rows of aligned windows ending at their own row (``end`` 0) whose sum from prefix sums of
+    values >= 0 may have lost digits: the test of :func:`_total_by_prefix` (bound from
+    :func:`_rounding` above SUM_RTOL of the result, or not finite), windows longer than
+    ``longer`` rows only, taken a block of rows at a time."""
+    found = []
+    step = _BLOCK * 8
+    with np.errstate(invalid="ignore"):
+        for a in range(0, s.n, step):
+            z = min(a + step, s.n)
+            bound = np.add(s.pos[a:z], 2, dtype=np.float64)  # exact, as in _rounding
+            bound *= 2 * _EPS
+            bound *= top[a:z]
+            o = out[a:z]
+            risk = bound > SUM_RTOL * np.abs(o)
+            risk |= ~np.isfinite(o)
+            risk &= b.length[a:z] > longer
+            found.append(np.flatnonzero(risk) + a)
+    return np.concatenate(found) if found else np.zeros(0, dtype=np.int64)
+
+
 def _prefix_ends(s: Subjects, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Inclusive per-subject prefix at the window's last row and just before its first row;
-    their difference is the window sum (meaningless for empty windows)."""
+    their difference is the window sum (meaningless for empty windows).  Both are arrays
+    of the caller's own but the first may be ``prefix`` itself."""
+    if b.aligned and s.n:
+        # Before a non-empty window's first row lo: the prefix at lo - 1, or 0 where lo starts the
+        # subject (aligned windows lie in their row's subject; empty ones are the caller's business).
+        bottom = np.subtract(b.lo, 1)
+        np.maximum(bottom, 0, out=bottom)
+        np.take(prefix, bottom, out=bottom.view(np.float64), mode="clip")  # in place: no second array
+        bottom = bottom.view(np.float64)
+        bottom[b.lo == s.first] = 0.0
+        if b.end == 0:  # hi - 1 = i: the prefix itself
+            return prefix, bottom
+        return prefix[np.maximum(b.hi - 1, 0)], bottom
     before = np.empty_like(prefix)  # sum of the subject's rows before row j, exactly 0 at starts
     if s.n:
         before[1:] = prefix[:-1]
