@@ -19,7 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-#: Subjects of at most this many rows are summed position by position (see :class:`ScanLayout`).
+#: Subjects of at most this many rows are summed position by position (see :class:`ScanLayout`);
+#: below 255, since their order is found by a one-byte sort.
 SCAN_SHORT = 64
 
 
@@ -140,13 +141,15 @@ def _scan_layout(s: Subjects) -> ScanLayout:
     # Long subjects: per subject the cell of its first row; the rows follow it.
     first_cell = rank.copy()  # short ones: rank + at[pos], below
     longs = by_length[n_short:]
-    cls = np.frexp(lengths[longs] - 1)[1]  # ceil(log2(length)), at least 7 here
+    cls = np.frexp(lengths[longs] - 1)[1]  # ceil(log2(length)); 0 for one row
     for k in np.unique(cls).tolist():
         members = longs[cls == k]  # in subject order
         first_cell[members] = cells + (np.arange(len(members), dtype=np.int64) << k)
         blocks.append((cells, len(members), 1 << k))
         cells += len(members) << k
-    row_short = short[s.grp]
     index = first_cell[s.grp]
-    index += np.where(row_short, at[np.minimum(s.pos, len(at) - 1)], s.pos)
+    if n_short:
+        index += np.where(short[s.grp], at[np.minimum(s.pos, len(at) - 1)], s.pos)
+    else:
+        index += s.pos
     return ScanLayout(index, cells, steps, tuple(blocks))
