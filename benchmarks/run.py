@@ -36,6 +36,7 @@ from __future__ import annotations
 import argparse
 import gc
 import json
+import math
 import os
 import platform
 import re
@@ -775,6 +776,25 @@ def targets(results: dict[str, Any], keys: list[str], rows: int) -> str:
     return "\n".join(lines)
 
 
+def growth(path: str, results: dict[str, Any], rows: int) -> str:
+    """Whole-job growth from a smaller run (its --json file) to this one, against n log n."""
+    with open(path) as f:
+        small = json.load(f)
+    factor = rows / small["rows"]
+    predicted = factor * math.log(rows) / math.log(small["rows"])
+    lines = [f"\n## growth from {small['rows']:,} to {rows:,} rows (n log n predicts {predicted:.1f}x)\n",
+             "| variant | engine | small s | this s | growth | extra peak / outputs |", "|---|---|---:|---:|---:|---:|"]
+    for variant, res in results.items():
+        for e, r in res.items():
+            before = small["results"].get(variant, {}).get(e)
+            if before is None:
+                continue
+            a, b = before["warm"]["job"]["best"], r["warm"]["job"]["best"]
+            peak = r["cold"]["job"]["peak"] / output_bytes(rows, small["keys"])
+            lines.append(f"| {variant} | {e} | {a:.3f} | {b:.3f} | {b / a:.1f}x | {peak:.2f} |")
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--n", type=int, default=200_000, help="subjects (default 200,000: about 2M rows)")
@@ -786,6 +806,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--budget", type=float, default=20.0, help="seconds per measurement after --min-repeat runs")
     ap.add_argument("--no-cold-transforms", action="store_true", help="skip the cold run of each single transform")
     ap.add_argument("--json", help="also write the raw results to this file")
+    ap.add_argument("--growth", help="a --json file of a smaller run: print how each engine's whole job grew")
     # worker-only options
     ap.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--engine", help=argparse.SUPPRESS)
@@ -853,6 +874,8 @@ def main(argv: list[str] | None = None) -> int:
     order = ["panelfx", *[e for e in engines if e != "panelfx"]]
     print(report(results, keys, order, rows))
     print(targets(results, keys, rows))
+    if args.growth:
+        print(growth(args.growth, results, rows))
     if args.json:
         with open(args.json, "w") as f:
             json.dump({"machine": info, "n": args.n, "rows": rows, "keys": keys, "results": results}, f, indent=1)

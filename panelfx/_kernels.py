@@ -23,8 +23,8 @@ from ._subjects import Subjects
 _SCALE_DOWN = 2.0**-80
 _SCALE_UP = 2.0**80
 
-SEARCH_PATHS = ("offset", "rank", "merge", "searchsorted")
-#: Tests force a search path (key "offset" or "rank"; lookup "merge" or "searchsorted").
+SEARCH_PATHS = ("offset", "rank", "packed", "merge", "searchsorted")
+#: Tests force a search path (key "offset" or "rank"; lookup "packed", "merge" or "searchsorted").
 FORCED_SEARCH: ContextVar[tuple[str, ...]] = ContextVar("panelfx_forced_search", default=())
 
 
@@ -93,10 +93,11 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
     """Running sum within subject: bit for bit ``s = 0.0; s += v`` over the subject's rows in float64.
 
     Sequential addition in time order, exactly as a loop over one subject's rows would
-    do it, so a subject's sums never depend on other subjects or on the row order.
-    Subjects are laid out as columns of a matrix (one matrix per length class, padding at
-    most doubles the cells) and summed down the columns by ``np.cumsum(axis=0)``: one
-    vectorised pass per length class.
+    do it, so a subject's sums never depend on other subjects or on the row order.  The
+    rows are laid out in a buffer (:attr:`Subjects.scan <panelfx._subjects.Subjects.scan>`,
+    made once per set of boundaries) where one vectorised add extends the sums of many
+    subjects by one position (short subjects) or one ``np.cumsum`` sums a matrix of long
+    subjects along its rows.
 
     Overflow: where a running sum overflows float64 although every value added is finite,
     the subject's later sums are carried scaled by 2**-80 and scaled back, so a later sum
@@ -112,35 +113,19 @@ def cumsum(s: Subjects, values: np.ndarray) -> np.ndarray:
 
 
 def _grid_cumsum(s: Subjects, v: np.ndarray) -> np.ndarray:
-    out = np.empty(s.n)
     if s.n == 0:
-        return out
-    lengths = s.lengths
-    if int(lengths.max()) == 1:
-        out[:] = v
-        return out
-    # One flat buffer holding a matrix per length class (subjects of 2**(k-1) < length <= 2**k),
-    # a subject per matrix row, so a subject's rows are contiguous there; padding at most doubles
-    # the cells.  Each matrix is summed along its rows: sequential, per subject.
-    cls = np.frexp(np.maximum(lengths - 1, 0))[1]
-    counts = np.bincount(cls)
-    region = np.cumsum(counts * (1 << np.arange(len(counts))))  # end of each class's matrix
-    base = np.empty(len(lengths), dtype=np.int64)
-    for c in np.flatnonzero(counts).tolist():
-        members = np.flatnonzero(cls == c)  # subject order within the class
-        base[members] = region[c] - counts[c] * (1 << c) + np.arange(len(members)) * (1 << c)
-    index = base[s.grp]
-    index += s.pos
-    flat = np.zeros(int(region[-1]))
-    flat[index] = v
-    at = 0
-    for k in range(len(counts)):
-        cells = int(counts[k]) << k
-        if counts[k] and k:
-            block = flat[at: at + cells].reshape(int(counts[k]), 1 << k)
-            np.cumsum(block, axis=1, out=block)
-        at += cells
-    return flat[index]
+        return np.empty(0)
+    lay = s.scan  # shared by every running sum over these subjects
+    # Cells beyond a long subject's last row are never read back, and each subject's sums use
+    # only its own earlier cells, so the buffer needs no zero fill.
+    flat = np.empty(lay.cells)
+    flat[lay.index] = v
+    for prev, cur, width in lay.steps:  # one add per position of the short subjects
+        np.add(flat[prev: prev + width], flat[cur: cur + width], out=flat[cur: cur + width])
+    for first, rows, row_len in lay.blocks:  # long subjects: sequential sums along matrix rows
+        block = flat[first: first + rows * row_len].reshape(rows, row_len)
+        np.cumsum(block, axis=1, out=block)
+    return flat[lay.index]
 
 
 def _rescue_overflow(s: Subjects, v: np.ndarray, out: np.ndarray) -> None:
@@ -193,10 +178,10 @@ def search_key(s: Subjects, tkey: np.ndarray) -> SearchKey:
 
 
 def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarray,
-                      grp: np.ndarray | None = None) -> np.ndarray:
+                      grp: np.ndarray | None = None, scratch: bool = False) -> np.ndarray:
     """Per query i in subject ``grp[i]`` (default: row i's own subject): the first row j of that
     subject with ``tkey[j] >= q[i]``, or the subject's end when there is none.  Exact: integer
-    comparisons only."""
+    comparisons only.  ``scratch``: ``q`` is the caller's temporary and may be overwritten."""
     g = s.grp if grp is None else grp
     if len(q) == 0:
         return np.zeros(0, dtype=np.int64)
@@ -205,32 +190,52 @@ def first_at_or_after(s: Subjects, tkey: np.ndarray, sk: SearchKey, q: np.ndarra
         first = sk.first[g]
         # q below the subject's first time: its first row; beyond first + width - 1: past its last
         # row, the subject's end (its keys stay below first + width - 1)
-        rel = np.maximum(q, first)
+        rel = np.maximum(q, first, out=q if scratch else None)
         rel -= first
         np.minimum(rel.view(np.uint64), sk.width - 1, out=rel.view(np.uint64))  # q - first may pass int64
+        block = np.multiply(g, sk.width, out=first)  # first is no longer needed: its memory serves
     else:
         assert sk.distinct is not None
         rel = np.searchsorted(sk.distinct, q, side="left").astype(np.int64)
-    rel += g * sk.width
+        block = g * sk.width
+    rel += block
+    del block
     return _lookup(sk.key, rel)
 
 
 def _lookup(key: np.ndarray, query: np.ndarray) -> np.ndarray:
     """First position of the sorted ``key`` >= each query (``np.searchsorted`` side left).
 
-    When the queries are sorted too, one stable sort of queries-then-keys merges the two
-    runs in O(n), about three times faster than a binary search per query: a key equal to
-    a query lands after it, so a query's rank minus the queries before it counts the keys
-    below it.
+    When the queries are sorted too, one sort of the two sorted runs merges them in O(n),
+    about three times faster than a binary search per query.  "packed": each value doubled,
+    keys marked by the low bit, so that a key equal to a query sorts after it; a query's
+    position minus the queries before it counts the keys below it.  Values are sorted, not
+    positions (no index array; equal values are interchangeable, so stability does not
+    matter).  "merge": the same with a stable argsort of queries-then-keys, for values that
+    do not fit the packing (and for unsorted queries, when forced).
     """
     forced = FORCED_SEARCH.get()
     m = len(query)
-    if "searchsorted" in forced or ("merge" not in forced and (query[1:] < query[:-1]).any()):
+    if m == 0:
+        return np.zeros(0, dtype=np.int64)
+    ordered = not (query[1:] < query[:-1]).any()
+    if "searchsorted" in forced or not (ordered or "merge" in forced or "packed" in forced):
         return np.searchsorted(key, query, side="left")
+    if ordered and "merge" not in forced and (not len(key) or (key[0] >= 0 and key[-1] < 2**62)) \
+            and query[0] >= 0 and query[-1] < 2**62:
+        both = np.empty(m + len(key), dtype=np.int64)
+        np.left_shift(query, 1, out=both[:m])
+        np.left_shift(key, 1, out=both[m:])
+        both[m:] |= 1
+        both.sort(kind="stable")  # two sorted runs: one merge
+        np.bitwise_and(both, 1, out=both)
+        is_query = both == 0
+        np.cumsum(both, out=both)  # keys so far: at a query, the keys below it
+        return both[is_query]
     order = np.argsort(np.concatenate([query, key]), kind="stable")
     at = np.flatnonzero(order < m)
     at -= np.arange(m)
-    if (query[1:] >= query[:-1]).all():
+    if ordered:
         return at
     out = np.empty(m, dtype=np.int64)
     out[order[order < m]] = at

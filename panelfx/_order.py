@@ -30,9 +30,13 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ._threads import WORKERS, run_all
 from .errors import NullKeyError, rows_message
 
 STRATEGIES = ("identity", "by_value", "packed", "ranked", "lexsort")
+#: With several threads, packed keys of at least this many rows are sorted in two halves side
+#: by side, then merged (tests lower it to force that path).
+PARALLEL_SORT_MIN = 1 << 20
 _FORCED: ContextVar[str | None] = ContextVar("panelfx_forced_order", default=None)
 
 
@@ -157,10 +161,23 @@ def _packed(codes: np.ndarray, q: np.ndarray, time_bits: int, row_bits: int,
     key |= q
     key <<= row_bits
     key |= np.arange(len(codes))
-    key.sort()
+    sort_unique(key)
     order = key & ((1 << row_bits) - 1)
     key >>= time_bits + row_bits
     return Ordering(order, strategy), key
+
+
+def sort_unique(key: np.ndarray) -> None:
+    """Sort int64 values that are all distinct, in place; on two threads for large arrays: each
+    half sorted side by side, then one merge of the two sorted runs (a stable sort finds them).
+    Distinct values have one sorted order, so the result does not depend on the path."""
+    n = len(key)
+    if WORKERS.get() > 1 and n >= PARALLEL_SORT_MIN:
+        half = n // 2
+        run_all([key[:half].sort, key[half:].sort])
+        key.sort(kind="stable")
+    else:
+        key.sort()
 
 
 def dense_ranks(t: np.ndarray) -> tuple[np.ndarray, int]:

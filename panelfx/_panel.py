@@ -229,9 +229,10 @@ class Panel:
     def search_key(self) -> K.SearchKey:
         return K.search_key(self.subjects, self.axis.key)
 
-    def first_at_or_after(self, q: np.ndarray) -> np.ndarray:
-        """Per row i: the first row j of i's subject with time key >= q[i] (the subject's end if none)."""
-        return K.first_at_or_after(self.subjects, self.axis.key, self.search_key, q)
+    def first_at_or_after(self, q: np.ndarray, scratch: bool = False) -> np.ndarray:
+        """Per row i: the first row j of i's subject with time key >= q[i] (the subject's end if none).
+        ``scratch``: q is the caller's temporary, which the search may overwrite."""
+        return K.first_at_or_after(self.subjects, self.axis.key, self.search_key, q, scratch=scratch)
 
     def reference(self, col: str) -> tuple[np.ndarray, np.ndarray]:
         """A column of times as (r, missing) in sorted order: key <= r means "on or before it"."""

@@ -72,14 +72,26 @@ class Bounds:
 
     ``end`` is 0 when the window ends at the current occasion and 1 when it ends just
     before it, so that ``hi = i + 1 - end``; -1 when the ends are irregular (an open right
-    end that also leaves out tied rows at the current time).
+    end that also leaves out tied rows at the current time).  ``aligned``: window i belongs
+    to sorted row i of the same rows and ``hi = i + 1 - end`` holds (as :func:`bounds`
+    makes them; windows of panel rows over a side table's records are not), so kernels may
+    read the window ends as shifted slices instead of gathering them.
     """
 
     lo: np.ndarray
-    hi: np.ndarray
+    stop: np.ndarray | None  # hi, or None when aligned: then hi = i + 1 - end, made on demand
     length: np.ndarray
     end: int
     width: int  # the longest window
+    aligned: bool = False
+
+    @property
+    def hi(self) -> np.ndarray:
+        """One past the window's last row, per row (aligned windows keep no copy: 8 bytes a row
+        less while a transform runs)."""
+        if self.stop is not None:
+            return self.stop
+        return np.arange(1 - self.end, len(self.lo) + 1 - self.end)
 
 
 def bounds(
@@ -98,24 +110,27 @@ def bounds(
     within a subject, so an open right end simply leaves the current occasion out.
     """
     s = p.subjects
-    i = np.arange(p.n)
     open_right = span is not None and closed in ("left", "neither")
     end = 1 if exclude_current or open_right else 0
-    hi = i + 1 - end
+    first_after = None
+    if occasions is None and span is not None:  # before hi exists: the search's temporaries peak here
+        # first occasion at or after t - span ([ closed left end) or after it (open)
+        first_after = p.first_at_or_after(p.axis.back(span, strict=closed not in ("both", "left")), scratch=True)
+    hi = np.arange(1 - end, p.n + 1 - end)
     if open_right and p.has_ties:
         # [t - s, t) leaves out every row at time t, tied rows earlier in the order too
         hi = np.minimum(hi, p.first_at_or_after(p.axis.key))
         end = -1
     if occasions is not None:
         lo = np.maximum(s.first, hi - occasions)
-    elif span is not None:
-        # first occasion at or after t - span ([ closed left end) or after it (open)
-        lo = p.first_at_or_after(p.axis.back(span, strict=closed not in ("both", "left")))
-        lo = np.minimum(lo, hi)
+    elif first_after is not None:
+        lo = np.minimum(first_after, hi, out=first_after)
     else:
         lo = s.first
     length = hi - lo
-    return Bounds(lo=lo, hi=hi, length=length, end=end, width=int(length.max()) if p.n else 0)
+    aligned = end >= 0
+    return Bounds(lo=lo, stop=None if aligned else hi, length=length, end=end,
+                  width=int(length.max()) if p.n else 0, aligned=aligned)
 
 
 # ---------------------------------------------------------------------- count, sum
@@ -123,10 +138,13 @@ def count(b: Bounds, mask: np.ndarray) -> np.ndarray:
     """Number of rows of each window where ``mask`` holds (int64, exact)."""
     if mask.all():
         return b.length.astype(np.int64, copy=True)
-    if b.width <= DIRECT_MAX:
-        return _direct(b, mask.astype(np.int64), np.add, 0).astype(np.int64)
-    c = np.zeros(mask.size + 1, dtype=np.int64)
+    # Integer prefix sums are exact: one difference per row, whatever the window's length.
+    c = np.empty(mask.size + 1, dtype=np.int64)
+    c[0] = 0
     np.cumsum(mask, out=c[1:])
+    if b.aligned:  # hi = i + 1 - end: a slice, not a gather
+        below = c[b.lo]
+        return np.subtract(c[1 - b.end: mask.size + 1 - b.end], below, out=below)
     return c[b.hi] - c[b.lo]
 
 
@@ -145,9 +163,18 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
         if over.size:  # an overflow on the way: add again, scaled
             out[over] = padded_apply(v0, b, over, _sum_of_rows)
         return out
-    out = _total_by_prefix(s, b, v0)
+    out = _total_by_prefix(s, b, v0, b.aligned)
     # Short windows are always added directly, whatever other rows' windows are, so that a
     # row's sum never depends on the other subjects (the same path, to the last bit).
+    if b.aligned:
+        # every row's direct sum over its last DIRECT_MAX rows, the prefix result beyond
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = _direct(b, v0, np.add, 0.0, depth=DIRECT_MAX, beyond=out)
+        over = np.flatnonzero(~np.isfinite(out))
+        over = over[b.length[over] <= DIRECT_MAX]  # an overflow on the way: add again, scaled
+        if over.size:
+            out[over] = padded_apply(v0, b, over, _sum_of_rows)
+        return out
     short = np.flatnonzero((b.length <= DIRECT_MAX) & (b.length > 0))
     if short.size:
         with np.errstate(over="ignore", invalid="ignore"):
@@ -162,22 +189,31 @@ def total(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
     return out
 
 
-def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
-    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly."""
+def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray, long_only: bool = False) -> np.ndarray:
+    """:func:`total` from differences of per-subject prefix sums, rows at risk added directly.
+
+    ``long_only``: the caller replaces windows of at most :data:`DIRECT_MAX` rows, so only
+    longer ones at risk are added directly here."""
     prefix = K.cumsum(s, v0)
     top, bottom = _prefix_ends(s, b, prefix)
     # For values >= 0 the running sum of |v| is the prefix sum itself, bit for bit.
     nonneg = not v0.size or v0.min() >= 0
     del prefix  # arrays of n floats are freed or reused as soon as possible: memory peaks here
     with np.errstate(invalid="ignore", over="ignore"):
-        out = top - bottom
+        out = np.subtract(top, bottom, out=bottom)
     del bottom
     out[b.length == 0] = 0.0
-    bound = _rounding(s, b, top if nonneg else None, v0)
+    if nonneg and b.aligned and b.end == 0:
+        # the same test as below, a block of rows at a time: no temporaries of n values
+        redo = _at_risk(s, b, out, top, DIRECT_MAX if long_only else 0)
+    else:
+        bound = _rounding(s, b, top if nonneg else None, v0)
+        with np.errstate(invalid="ignore"):
+            redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
+        if long_only:
+            redo = redo[b.length[redo] > DIRECT_MAX]
+        del bound
     del top
-    with np.errstate(invalid="ignore"):
-        redo = np.flatnonzero(((bound > SUM_RTOL * np.abs(out)) | ~np.isfinite(out)) & (b.length > 0))
-    del bound
     if redo.size:
         # A window of zeros sums to exactly 0 from the prefix sums too: no need to redo it.
         nz = count(b, v0 != 0)
@@ -186,13 +222,48 @@ def _total_by_prefix(s: Subjects, b: Bounds, v0: np.ndarray) -> np.ndarray:
     return out
 
 
+def _at_risk(s: Subjects, b: Bounds, out: np.ndarray, top: np.ndarray, longer: int) -> np.ndarray:
+    """Rows of aligned windows ending at their own row (``end`` 0) whose sum from prefix sums of
+    values >= 0 may have lost digits: the test of :func:`_total_by_prefix` (bound from
+    :func:`_rounding` above SUM_RTOL of the result, or not finite), windows longer than
+    ``longer`` rows only, taken a block of rows at a time."""
+    found = []
+    step = _BLOCK * 8
+    with np.errstate(invalid="ignore"):
+        for a in range(0, s.n, step):
+            z = min(a + step, s.n)
+            bound = np.add(s.pos[a:z], 2, dtype=np.float64)  # exact, as in _rounding
+            bound *= 2 * _EPS
+            bound *= top[a:z]
+            o = out[a:z]
+            risk = bound > SUM_RTOL * np.abs(o)
+            risk |= ~np.isfinite(o)
+            risk &= b.length[a:z] > longer
+            found.append(np.flatnonzero(risk) + a)
+    return np.concatenate(found) if found else np.zeros(0, dtype=np.int64)
+
+
 def _prefix_ends(s: Subjects, b: Bounds, prefix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Inclusive per-subject prefix at the window's last row and just before its first row;
-    their difference is the window sum (meaningless for empty windows)."""
+    their difference is the window sum (meaningless for empty windows).  Both are arrays
+    of the caller's own but the first may be ``prefix`` itself."""
+    if b.aligned and s.n:
+        # Before a non-empty window's first row lo: the prefix at lo - 1, or 0 where lo starts the
+        # subject (aligned windows lie in their row's subject; empty ones are the caller's business).
+        bottom = np.subtract(b.lo, 1)
+        np.maximum(bottom, 0, out=bottom)
+        np.take(prefix, bottom, out=bottom.view(np.float64), mode="clip")  # in place: no second array
+        bottom = bottom.view(np.float64)
+        bottom[b.lo == s.first] = 0.0
+        if b.end == 0:  # hi - 1 = i: the prefix itself
+            return prefix, bottom
+        return prefix[np.maximum(b.hi - 1, 0)], bottom
     before = np.empty_like(prefix)  # sum of the subject's rows before row j, exactly 0 at starts
     if s.n:
         before[1:] = prefix[:-1]
         before[s.starts] = 0.0
+    if b.aligned and b.end == 0:  # hi - 1 = i: the prefix itself
+        return prefix, before[b.lo]
     return prefix[np.maximum(b.hi - 1, 0)], before[b.lo]
 
 
@@ -207,8 +278,11 @@ def _rounding(s: Subjects, b: Bounds, magnitude_top: np.ndarray | None, v: np.nd
     if magnitude_top is None:
         run = K.cumsum(s, np.abs(v))
         magnitude_top = run[np.maximum(b.hi - 1, 0)]
-    k = (s.pos[np.maximum(b.hi - 1, 0)] + 2).astype(np.float64) if s.n else np.zeros(0)
-    return 2 * _EPS * k * magnitude_top
+    last = s.pos if b.aligned and b.end == 0 else s.pos[np.maximum(b.hi - 1, 0)]
+    k = np.add(last, 2, dtype=np.float64) if s.n else np.zeros(0)  # exact: positions are far below 2**53
+    k *= 2 * _EPS
+    k *= magnitude_top
+    return k
 
 
 def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -221,22 +295,56 @@ def _sum_of_rows(vals: np.ndarray, c: np.ndarray) -> np.ndarray:
     return out
 
 
-def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int) -> np.ndarray:
-    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length."""
+def _direct(b: Bounds, v: np.ndarray, ufunc: np.ufunc, start: float | int,
+            depth: int | None = None, beyond: np.ndarray | None = None) -> np.ndarray:
+    """Reduce each (short) window offset by offset: ``ufunc`` over v[hi - 1 - d], d < length.
+
+    ``depth``: only the offsets d < depth; windows longer than that take ``beyond`` (their
+    result from another path; overwritten with the result where the ends are regular) or,
+    without it, a partial reduction for the caller to replace.
+    """
     n = v.size
-    out = np.full(n, start, dtype=np.result_type(v.dtype, type(start)))
+    dtype = np.result_type(v.dtype, type(start))
+    reach_max = b.width if depth is None else min(b.width, depth)
     if b.end < 0:  # irregular ends: gather each offset
-        for d in range(b.width):
+        out = np.full(n, start, dtype=dtype)
+        for d in range(reach_max):
             reach = b.length > d
             ufunc(out, v[np.maximum(b.hi - 1 - d, 0)], out=out, where=reach)
+        if beyond is not None:
+            np.copyto(out, beyond, where=b.length > reach_max)
         return out
-    for d in range(b.width):
-        s = b.end + d
-        if s >= n:
-            break
-        # in place where the window reaches back d rows (half the passes of np.where)
-        ufunc(out[s:], v[: n - s], out=out[s:], where=b.length[s:] > d)
+    # Row i's window ends at v[i - end]: the running reductions over the last 1, 2, ... rows
+    # are shifted slices of each other.  A block of rows keeps them all (row 0: the empty
+    # window), and each row picks the one of its own length by one gather: plain vectorised
+    # passes, not masked ones (a ufunc with a data-dependent where= runs about twenty times
+    # slower).  Blocks of _BLOCK rows keep that matrix in the cache.
+    # each block of beyond is copied into the grid before the block's results are written
+    out = np.empty(n, dtype=dtype) if beyond is None else beyond
+    top = reach_max + (beyond is not None)
+    step = min(_BLOCK, max(n, 1))
+    grid = np.empty((top + 1, step), dtype=dtype)
+    grid[0] = start
+    flat = grid.reshape(-1)
+    cols = np.arange(step)
+    for a in range(0, n, step):
+        z = min(a + step, n)
+        m = z - a
+        for d in range(reach_max):
+            s = b.end + d
+            k = min(max(s - a, 0), m)  # rows before k reach before row 0: never picked at this depth
+            ufunc(grid[d, k:m], v[a + k - s: z - s], out=grid[d + 1, k:m])
+        if beyond is not None:
+            grid[top, :m] = beyond[a:z]
+        pick = np.minimum(b.length[a:z], top)
+        pick *= step
+        pick += cols[:m]
+        np.take(flat, pick, out=out[a:z])
     return out
+
+
+#: Rows per block of :func:`_direct` (a few matrices of this many values stay in the cache).
+_BLOCK = 1 << 15
 
 
 # ---------------------------------------------------------------------- var, std

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import bisect
+import functools
 from collections.abc import Mapping, Sequence
 from typing import Any, Literal
 
@@ -15,6 +16,7 @@ from ._options import checked_options
 from ._panel import Panel, as_id_list
 from ._subset import after_panel
 from ._tables import check_table_uses, side_tables
+from ._threads import default_workers, run_all, using
 from ._transform import Transform
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
 
@@ -136,9 +138,11 @@ def derive(
     :func:`~panelfx.exposure`); each carries the id columns under the same names, and is
     validated and ordered once for all transforms.
 
-    ``threads``: transforms that do not read each other's outputs run side by side on this
-    many threads (default 1: on the benchmark two threads did not pay off).  The results
-    are the same bit for bit whatever the number.
+    ``threads``: the sort of the rows is split, and transforms that do not read each other's
+    outputs run side by side, on this many threads.  Default: two for panels of a million
+    rows or more when a core is free (the load average leaves one idle), else one; a second
+    thread competing with other work on a busy machine was measured slower.  The results are
+    the same bit for bit whatever the number.
 
     ``keep="new"`` returns the derived columns only (same index and rows; default ``"all"``).
     ``rows="by_subject"`` returns the rows grouped by subject, subjects in order of first
@@ -162,14 +166,15 @@ def derive(
     r3    1    0  12.5      NaN        0.0
     """
     # the transform list and the options are checked before any O(n log n) work
-    workers = _threads(threads)
+    workers = _threads(threads, len(frame))
     _choice("keep", keep, KEEP)
     _choice("rows", rows, ROWS)
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
-    panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
-    panel.tables = side_tables(panel, tables)
-    after_panel(frame, panel)
-    new = compute_all(panel, transforms, workers)
+    with using(workers):
+        panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
+        panel.tables = side_tables(panel, tables)
+        after_panel(frame, panel)
+        new = compute_all(panel, transforms, workers)
     if list(new) != names:  # pragma: no cover - plan() and compute_all() read the same outputs()
         raise PanelError(f"transforms made columns {list(new)}, expected {names}")
     # One concatenation (a column at a time fragments the frame).  The derived arrays are our
@@ -228,13 +233,15 @@ def compute_all(panel: Panel, transforms: Sequence[Transform], threads: int | No
     """
     frame = panel.frame
     new: dict[str, pd.Series] = {}
-    workers = _threads(threads)
+    workers = _threads(threads, panel.n)
     for stage in _stages(transforms):
         if workers > 1 and len(stage) > 1:
-            from concurrent.futures import ThreadPoolExecutor
-
-            with ThreadPoolExecutor(max_workers=min(workers, len(stage))) as pool:
-                done = list(pool.map(lambda i: _run_one(panel, transforms, i), stage))
+            # the costliest first, so that the last one to start is a short one
+            by_cost = sorted(stage, key=lambda i: -_COST.get(transforms[i].type_name, 1))
+            with using(workers):
+                results = run_all([functools.partial(_run_one, panel, transforms, i) for i in by_cost])
+            made = dict(zip(by_cost, results))
+            done = [made[i] for i in stage]
         else:
             done = [_run_one(panel, transforms, i) for i in stage]
         for outputs in done:  # registered in transform order, once the stage is complete
@@ -265,6 +272,11 @@ def _run_one(panel: Panel, transforms: Sequence[Transform], i: int) -> list[tupl
     return done
 
 
+#: Rough relative cost of a transform type, only to start costly ones first on several threads.
+_COST = {"rolling": 4, "table_window": 4, "exposure": 4, "as_of": 3, "cumulative": 2, "time_since": 2,
+         "events_so_far": 2, "carry_forward": 2}
+
+
 def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
     """Transforms grouped so that each reads outputs of earlier stages only (in order within a stage)."""
     stage_of: dict[str, int] = {}
@@ -279,11 +291,11 @@ def _stages(transforms: Sequence[Transform]) -> list[list[int]]:
     return stages
 
 
-def _threads(threads: int | None) -> int:
-    """Threads to use: ``None`` for the default, 1 (on the benchmark two threads were slower
-    than one for the shuffled job: see benchmarks/README.md)."""
+def _threads(threads: int | None, rows: int = 0) -> int:
+    """Threads to use: ``None`` for the default (two for large panels when a core is free,
+    see :func:`panelfx._threads.default_workers`), else a positive integer."""
     if threads is None:
-        return 1
+        return default_workers(rows)
     if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
         raise OptionError(f"threads must be a positive integer or None, got {threads!r}")
     return threads

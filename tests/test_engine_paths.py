@@ -20,7 +20,7 @@ from panelfx._panel import Panel
 from panelfx._subjects import Subjects
 
 ORDERINGS = ["identity", "by_value", "packed", "ranked", "lexsort"]
-SEARCHES = [(), ("rank",), ("merge",), ("searchsorted",), ("rank", "searchsorted")]
+SEARCHES = [(), ("rank",), ("packed",), ("merge",), ("searchsorted",), ("rank", "searchsorted"), ("rank", "merge")]
 
 
 @contextlib.contextmanager
@@ -139,9 +139,24 @@ def test_unsorted_queries_are_answered_in_place():
     key = np.array([1, 3, 3, 7], dtype=np.int64)
     q = np.array([7, 0, 3, 8, 2], dtype=np.int64)
     want = np.searchsorted(key, q, side="left")  # numpy as the reference
-    for paths in [(), ("merge",), ("searchsorted",)]:
+    for paths in [(), ("packed",), ("merge",), ("searchsorted",)]:
         with search(paths):
             assert K._lookup(key, q).tolist() == want.tolist()
+
+
+@pytest.mark.parametrize("paths", [(), ("packed",), ("merge",), ("searchsorted",)])
+def test_sorted_queries_every_lookup(paths):
+    """Sorted queries with repeats, equal to keys, below and above them all, and near 2**62 (past
+    the packing: merged by argsort instead)."""
+    rng = np.random.default_rng(11)
+    key = np.sort(rng.integers(0, 50, 300))
+    q = np.sort(np.concatenate([rng.integers(-3, 55, 200), key[:20], [0, 0, 49, 60]]))
+    big = np.array([2**62 - 5, 2**62 + 3, 2**62 + 3], dtype=np.int64)
+    with search(paths):
+        for k, qq in [(key, q), (key, np.maximum(q, 0)), (np.append(key, big), np.append(q, big[::-1][:2])),
+                      (key[:0], np.maximum(q, 0)), (key, q[:0])]:
+            qq = np.sort(qq)
+            assert K._lookup(k, qq).tolist() == np.searchsorted(k, qq, side="left").tolist()  # numpy as reference
 
 
 # ---------------------------------------------------------------------- probe shortcuts
@@ -189,3 +204,117 @@ def test_unsigned_ids_beyond_int64():
     df = pd.DataFrame({"id": np.array([big, 3, big], dtype=np.uint64), "t": [1, 0, 0], "y": [1.0, 2.0, 3.0]})
     out = pfx.derive(df, pfx.lag("y"), id="id", time="t")
     assert out["y_lag1"].tolist()[0] == 3.0 and np.isnan(out["y_lag1"].tolist()[2])
+
+
+# ---------------------------------------------------------------------- short windows in row blocks
+def newest_first_sum(y: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Plain loop: 0.0, then the window's values from its last row back to its first (the order
+    the direct kernel adds them in), non-missing values only."""
+    out = np.zeros(len(lo))
+    for i in range(len(lo)):
+        total = 0.0
+        for j in range(hi[i] - 1, lo[i] - 1, -1):
+            if not np.isnan(y[j]):
+                total += float(y[j])
+        out[i] = total
+    return out
+
+
+@pytest.mark.parametrize("block", [1, 2, 3, 5, 64, 1 << 15])
+def test_direct_windows_in_any_block_of_rows(block, monkeypatch):
+    """Short windows are reduced in blocks of rows (windows reach back across block edges):
+    the same bits for every block size, and the same as a plain loop."""
+    from panelfx import _windows as W
+
+    rng = np.random.default_rng(13)
+    n = 400
+    df = pd.DataFrame({"id": np.repeat(np.arange(40), 10), "t": np.tile(np.arange(10) * 3, 40),
+                       "y": rng.normal(size=n) * 10.0 ** rng.integers(-9, 9, n)})
+    df.loc[rng.random(n) < 0.2, "y"] = np.nan
+    steps = [pfx.rolling("y", "sum", occasions=4, name="s4"),
+             pfx.rolling("y", "sum", occasions=3, exclude_current=True, name="s3x"),
+             pfx.rolling("y", "sum", span=20, name="s20"),  # up to 7 rows: short ones direct, longer by prefix
+             pfx.rolling("y", "max", occasions=3, name="m3"), pfx.rolling("y", "count", occasions=2, name="c2")]
+    monkeypatch.setattr(W, "_BLOCK", 1 << 15)
+    want = pfx.derive(df, *steps, id="id", time="t")
+    monkeypatch.setattr(W, "_BLOCK", block)
+    got = pfx.derive(df, *steps, id="id", time="t")
+    pd.testing.assert_frame_equal(got, want, check_exact=True)
+    y = df["y"].to_numpy()
+    i = np.arange(n)
+    first = i - i % 10
+
+    def same(col: str, lo: np.ndarray, hi: np.ndarray, rows: np.ndarray | None = None) -> None:
+        want = newest_first_sum(y, lo, hi)
+        want[newest_first_sum(~np.isnan(y) * 1.0, lo, hi) == 0] = np.nan  # no value: missing
+        rows = np.ones(n, dtype=bool) if rows is None else rows
+        assert np.array_equal(got[col].to_numpy()[rows], want[rows], equal_nan=True), col
+
+    same("s4", np.maximum(first, i - 3), i + 1)
+    same("s3x", np.maximum(first, i - 3), i)
+    same("s20", np.maximum(first, i - 6), i + 1, rows=i - np.maximum(first, i - 6) + 1 <= 4)  # the direct ones
+    assert np.array_equal(got["m3"].to_numpy(), pd.Series(y).groupby(first).rolling(3, min_periods=1).max()
+                          .to_numpy(), equal_nan=True)  # pandas as the reference
+
+
+# ---------------------------------------------------------------------- threads
+def test_two_thread_sort_gives_the_one_thread_order(monkeypatch):
+    """The packed key sorted in two halves side by side, then merged: the same permutation."""
+    from panelfx import _threads
+
+    monkeypatch.setattr(_order, "PARALLEL_SORT_MIN", 2)
+    rng = np.random.default_rng(14)
+    for trial in range(40):
+        df = random_frame(rng, trial)
+        want = Panel(df, id="id", time="t", strict=False)
+        with _threads.using(2):
+            got = Panel(df, id="id", time="t", strict=False)
+        assert got.ordering.strategy == want.ordering.strategy
+        assert (got.ordering.order is None) == (want.ordering.order is None)
+        if want.ordering.order is not None:
+            assert np.array_equal(got.ordering.order, want.ordering.order), trial
+    key = rng.permutation(1000).astype(np.int64)
+    with _threads.using(2):
+        _order.sort_unique(key)
+    assert key.tolist() == list(range(1000))
+
+
+def test_forcing_switches_hold_on_worker_threads():
+    """Transforms on worker threads see the caller's forced paths (each task runs in a copy of
+    the caller's context)."""
+    from panelfx import _threads
+
+    seen = []
+    with search(("rank", "searchsorted")), _threads.using(2):
+        _threads.run_all([lambda: seen.append(K.FORCED_SEARCH.get()) for _ in range(4)])
+    assert seen == [("rank", "searchsorted")] * 4
+
+
+def test_default_threads_follow_size_and_free_cores(monkeypatch):
+    """Two threads by default only for large panels with a core to spare (results do not depend on it)."""
+    from panelfx import _threads
+
+    monkeypatch.setattr(_threads.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (0.3, 0.3, 0.3))
+    assert _threads.default_workers(10) == 1
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 2
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (1.7, 1.0, 1.0))  # both cores busy
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1
+    monkeypatch.setattr(_threads.os, "getloadavg", lambda: (0.0, 0.0, 0.0))
+    monkeypatch.setattr(_threads.os, "sched_getaffinity", lambda pid: {0}, raising=False)
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1
+
+
+def test_default_threads_without_a_load_average(monkeypatch):
+    """Where the OS has no load average (no os.getloadavg, or it fails), the default is one thread."""
+    from panelfx import _threads
+
+    monkeypatch.setattr(_threads.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    monkeypatch.delattr(_threads.os, "getloadavg")
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1
+
+    def fails():
+        raise OSError("no load average")
+
+    monkeypatch.setattr(_threads.os, "getloadavg", fails, raising=False)
+    assert _threads.default_workers(_threads.AUTO_MIN_ROWS) == 1

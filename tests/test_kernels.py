@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from panelfx import _kernels as K
-from panelfx._subjects import Subjects
+from panelfx._subjects import SCAN_SHORT, Subjects
 
 
 def subjects_of(sizes: list[int]) -> Subjects:
@@ -102,3 +102,24 @@ def test_overflow_on_the_way_is_not_kept(sign):
     v = sign * np.array([1e308, 1e308, -1e308, 1.0, 5.0, 6.0])
     got = K.cumsum(s, v)
     assert got.tolist() == (sign * np.array([1e308, np.inf, 1e308, 1e308, 5.0, 11.0])).tolist()
+
+
+@pytest.mark.parametrize("sizes", [
+    [SCAN_SHORT, SCAN_SHORT + 1, 1, 2 * SCAN_SHORT + 1, SCAN_SHORT - 1, 3],  # both layouts, around the cut
+    [SCAN_SHORT + 1, 4 * SCAN_SHORT],  # long subjects only
+    [1, 1, 1],  # nothing to add
+])
+def test_both_layouts_are_the_sequential_sum(sizes):
+    """Short subjects are summed position by position, long ones along matrix rows: each alone."""
+    rng = np.random.default_rng(8)
+    s = subjects_of(sizes)
+    v = rng.normal(size=s.n) * 10.0 ** rng.integers(-8, 8, s.n)
+    assert np.array_equal(K.cumsum(s, v), per_subject_loop(s, v))
+
+
+def test_layout_is_made_once_per_boundaries():
+    s = subjects_of([3, 70, 1])
+    first = s.scan
+    K.cumsum(s, np.ones(s.n))
+    assert s.scan is first
+    assert sorted(first.index.tolist()) == sorted(set(first.index.tolist()))  # one cell per row

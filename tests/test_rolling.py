@@ -232,6 +232,21 @@ def test_small_windows_after_a_huge_value(paths):
     assert col(out, "y_std_3")[5] == pytest.approx(math.sqrt(4 / 3), rel=1e-14)  # {3, 5, 5}
 
 
+@pytest.mark.parametrize("paths", PATHS)
+def test_fractions_after_a_huge_value_keep_their_digits(paths):
+    """Values >= 0 (the running total is its own magnitude bound): 1e17 + 0.1 rounds to 1e17, so
+    window sums of the later fractions from running totals would be 0 or 16; such rows are added
+    up directly (math.fsum of the window as the reference)."""
+    y = [1e17, 0.1, 0.2, 0.3, 0.5, 0.25, 0.125, 0.7]
+    df = one_subject(list(range(len(y))), y)
+    with kernels(**paths):
+        out = run(df, pfx.rolling("y", "sum", occasions=5, name="s5"), pfx.rolling("y", "mean", span=2, name="m2"))
+    for i in range(5, len(y)):
+        assert col(out, "s5")[i] == pytest.approx(math.fsum(y[i - 4: i + 1]), rel=1e-15)
+    for i in range(2, len(y)):
+        assert col(out, "m2")[i] == pytest.approx(math.fsum(y[i - 1: i + 1]) / 2, rel=1e-15)
+
+
 def test_large_level_small_spread():
     # Values 1e9 + noise: the centred variance keeps the spread's digits.
     rng = np.random.default_rng(5)

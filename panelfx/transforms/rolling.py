@@ -144,7 +144,7 @@ class Rolling(Transform):
                 out = np.where(up & down, np.nan, np.where(up, np.inf, np.where(down, -np.inf, out)))
             if stat == "mean":
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    out = out / cnt
+                    np.divide(out, cnt, out=out)  # in place: out is this call's own array
             return out
         finite = valid & ~infinite
         yf = np.where(infinite, np.nan, y) if has_inf else y

@@ -100,7 +100,7 @@ class TableWindow(Transform):
         length = hi - lo
         lo[length == 0] = 0  # empty windows point at no record (the prefix sums index lo and hi - 1)
         hi[length == 0] = 0
-        b = W.Bounds(lo=lo, hi=hi, length=length, end=0,
+        b = W.Bounds(lo=lo, stop=hi, length=length, end=0,
                      width=max(W.DIRECT_MAX + 1, int(length.max()) if n else 0))
         if self.col is None:
             if self.stat == "any":
