@@ -639,6 +639,12 @@ def worker(args: argparse.Namespace) -> dict[str, Any]:
     return out
 
 
+#: glibc allocator settings for --reuse-freed-memory: no fresh mmap per large array (each one costs the
+#: kernel a page fault per page and a zeroing pass; with transparent huge pages also compaction) and
+#: freed memory kept for the next array instead of returned to the system.  Every engine gets them.
+REUSE_FREED_MEMORY = {"MALLOC_MMAP_MAX_": "0", "MALLOC_TRIM_THRESHOLD_": str(2**40)}
+
+
 def _spawn(args: argparse.Namespace, **kw: Any) -> dict[str, Any]:
     cmd = [sys.executable, os.path.abspath(__file__), "--worker"]
     for k, v in kw.items():
@@ -647,7 +653,8 @@ def _spawn(args: argparse.Namespace, **kw: Any) -> dict[str, Any]:
         elif v is not False and v is not None:
             cmd += [f"--{k.replace('_', '-')}", str(v)]
     cmd += ["--repeat", str(args.repeat), "--min-repeat", str(args.min_repeat), "--budget", str(args.budget)]
-    proc = subprocess.run(cmd, capture_output=True, text=True)
+    env = {**os.environ, **REUSE_FREED_MEMORY} if args.reuse_freed_memory else None
+    proc = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if proc.returncode != 0:
         raise RuntimeError(f"worker {kw} failed:\n{proc.stderr[-3000:]}")
     return json.loads(proc.stdout.strip().splitlines()[-1])
@@ -807,6 +814,9 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--no-cold-transforms", action="store_true", help="skip the cold run of each single transform")
     ap.add_argument("--json", help="also write the raw results to this file")
     ap.add_argument("--growth", help="a --json file of a smaller run: print how each engine's whole job grew")
+    ap.add_argument("--reuse-freed-memory", action="store_true",
+                    help="run every engine with glibc's allocator keeping freed memory (MALLOC_MMAP_MAX_=0, "
+                         "MALLOC_TRIM_THRESHOLD_=2**40): shows how much of a large job is the kernel mapping fresh pages")
     # worker-only options
     ap.add_argument("--worker", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--engine", help=argparse.SUPPRESS)
@@ -837,6 +847,8 @@ def main(argv: list[str] | None = None) -> int:
     info = machine()
     print(f"machine: {info['cpu']}, {info['cores']} cores, {info['memory_gib']} GiB; load {info['load']}")
     print("versions: " + ", ".join(f"{k} {v}" for k, v in info["versions"].items()))
+    if args.reuse_freed_memory:
+        print("allocator: " + " ".join(f"{k}={v}" for k, v in REUSE_FREED_MEMORY.items()) + " (every engine)")
     results: dict[str, Any] = {}
     rows = 0
     with tempfile.TemporaryDirectory(prefix="panelfx-bench-") as folder:

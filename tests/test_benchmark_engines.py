@@ -79,3 +79,27 @@ def test_running_sums_are_accurate_to_per_subject_sums(bench):
     assert bench.relative_error(out["dose_auc"].to_numpy(), exact["cumulative_area"]) <= 1e-12
     assert bench.relative_error(np.array([0.0, 1.0]), np.array([0.0, 1.0 + 1e-9])) > 1e-12
     assert bench.relative_error(np.array([1e-300, 1.0]), np.array([0.0, 1.0])) == float("inf")
+
+
+def test_reuse_freed_memory_reaches_the_workers(bench, monkeypatch):
+    """--reuse-freed-memory hands glibc's allocator settings to every worker process (and only then)."""
+    import argparse
+    import json
+
+    seen = []
+
+    class Done:
+        returncode = 0
+        stdout = json.dumps({"ok": True})
+        stderr = ""
+
+    def fake_run(cmd, **kw):
+        seen.append(kw.get("env"))
+        return Done()
+
+    monkeypatch.setattr(bench.subprocess, "run", fake_run)
+    for flag in (True, False):
+        args = argparse.Namespace(repeat=1, min_repeat=1, budget=1.0, reuse_freed_memory=flag)
+        assert bench._spawn(args, worker=True, engine="numpy") == {"ok": True}
+    assert seen[0]["MALLOC_MMAP_MAX_"] == "0" and int(seen[0]["MALLOC_TRIM_THRESHOLD_"]) >= 2**30
+    assert seen[1] is None  # the caller's environment, unchanged
