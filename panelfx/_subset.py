@@ -40,7 +40,7 @@ __all__ = ["quiet", "counting", "after_panel"]
 _QUIET: ContextVar[bool] = ContextVar("panelfx_subset_quiet", default=False)
 _COUNTS: ContextVar[dict[str, int] | None] = ContextVar("panelfx_subset_counts", default=None)
 
-#: Key of the provenance record in ``DataFrame.attrs`` (as in :mod:`panelfx.derivation`).
+#: Key of the provenance record in ``DataFrame.attrs`` (``Derivation.apply`` writes it; Parquet metadata too).
 ATTRS_KEY = "panelfx"
 
 #: Subjects with two or more rows the index rule needs before it judges (few rows may look grouped by chance).

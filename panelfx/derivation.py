@@ -44,10 +44,10 @@ import pandas as pd
 
 from ._frames import frames, to_pandas
 from ._panel import UNITS_NS, as_id_list, key_column, time_kind
-from ._subset import counting
+from ._subset import ATTRS_KEY, counting
 from ._transform import REGISTRY, Transform
 from ._upgrade import upgrade_v1
-from .derive import derive, plan
+from .derive import Keep, Rows, derive, plan
 from .errors import OptionError, PanelError
 
 __all__ = ["Derivation", "DerivationFileError", "FORMAT", "VERSION", "DICTIONARY_COLUMNS"]
@@ -63,9 +63,6 @@ DICTIONARY_COLUMNS = ["column", "step", "transform", "sources", "description", "
 #: Longest label of a transform: ADaM variable labels are at most 40 characters (the SAS V5
 #: transport limit the CDISC ADaM Implementation Guide keeps).
 LABEL_CHARS = 40
-
-#: Key of the provenance record in ``DataFrame.attrs`` (and in Parquet metadata).
-ATTRS_KEY = "panelfx"
 
 UNIT_WORDS = {
     "ns": "nanoseconds", "us": "microseconds", "ms": "milliseconds", "s": "seconds", "min": "minutes",
@@ -251,8 +248,7 @@ class Derivation:
 
     @frames(result="added", tables="tables", passthrough=lambda f: type(f).__module__.startswith("dask."))
     def apply(self, frame: pd.DataFrame, tables: Mapping[str, pd.DataFrame] | None = None,
-              threads: int | None = None, keep: Literal["all", "new"] = "all",
-              rows: Literal["input", "by_subject"] = "input",
+              threads: int | None = None, keep: Keep = "all", rows: Rows = "input",
               **dask_options: Any) -> pd.DataFrame:
         """``derive(frame, *transforms, id=, time=, unit=, tables=, keep=, rows=)``, with the
         provenance (this derivation, its data dictionary, and the ``rows`` and ``subjects`` of

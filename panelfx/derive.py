@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import bisect
 import functools
+import typing
 from collections.abc import Mapping, Sequence
 from typing import Any, Literal
 
@@ -17,8 +18,12 @@ from ._panel import Panel, as_id_list
 from ._subset import after_panel
 from ._tables import check_table_uses, side_tables
 from ._threads import default_workers, run_all, using
-from ._transform import Transform
+from ._transform import Transform, check_choice
 from .errors import ColumnExistsError, MissingColumnError, OptionError, PanelError
+
+#: Values of ``derive(keep=)`` and ``derive(rows=)`` (also ``Derivation.apply``).
+Keep = Literal["all", "new"]
+Rows = Literal["input", "by_subject"]
 
 
 def plan(
@@ -110,8 +115,8 @@ def derive(
     time_unit: str | None = None,
     tables: Mapping[str, pd.DataFrame] | None = None,
     threads: int | None = None,
-    keep: Literal["all", "new"] = "all",
-    rows: Literal["input", "by_subject"] = "input",
+    keep: Keep = "all",
+    rows: Rows = "input",
 ) -> pd.DataFrame:
     """Add the derived columns of ``transforms`` to a copy of ``frame``.
 
@@ -167,8 +172,8 @@ def derive(
     """
     # the transform list and the options are checked before any O(n log n) work
     workers = _threads(threads, len(frame))
-    _choice("keep", keep, KEEP)
-    _choice("rows", rows, ROWS)
+    check_choice("keep", keep, typing.get_args(Keep))
+    check_choice("rows", rows, typing.get_args(Rows))
     names = plan(list(frame.columns), transforms, as_id_list(id), time, table_columns(tables))
     with using(workers):
         panel = Panel(frame, id=id, time=time, unit=unit, order=order, time_unit=time_unit)
@@ -201,14 +206,6 @@ def derive(
     return out
 
 
-#: Values of ``derive(keep=)`` and ``derive(rows=)``.
-KEEP = ("all", "new")
-ROWS = ("input", "by_subject")
-
-
-def _choice(option: str, value: object, allowed: tuple[str, ...]) -> None:
-    if not isinstance(value, str) or value not in allowed:
-        raise OptionError(f"{option} must be one of {', '.join(map(repr, allowed))}, got {value!r}", column=None)
 
 
 def table_columns(tables: Mapping[str, Any] | None) -> dict[str, list[str]]:

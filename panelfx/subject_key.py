@@ -7,12 +7,16 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
+from ._frames import frames
+from ._options import checked_options
 from ._panel import as_id_list, key_column, require_columns
 from .errors import NullKeyError, OptionError, rows_message
 
 __all__ = ["subject_key"]
 
 
+@checked_options
+@frames(result="none")
 def subject_key(frame: pd.DataFrame, id: str | Sequence[str], *, name: str = "subject_key") -> pd.Series:
     """One int64 code per subject, for models that take a single grouping column.
 
@@ -21,7 +25,9 @@ def subject_key(frame: pd.DataFrame, id: str | Sequence[str], *, name: str = "su
     "subject"]``).  The codes are 0, 1, ... in **sorted order of the id values** (the first
     column first), so the same frame gives the same codes whatever its row order; a subset
     with fewer subjects is numbered afresh.  ``id`` may name index levels.  The result has
-    the frame's index and is named ``name``.
+    the frame's index and is named ``name``.  A polars DataFrame or pyarrow Table is read as the
+    other functions read it; the key is then a pandas Series over row numbers 0, 1, ... (its
+    ``to_numpy()`` goes straight into ``groups=``).
 
     Missing values: a missing id value raises :class:`~panelfx.NullKeyError` (a subject
     cannot be told apart from another).
@@ -37,8 +43,6 @@ def subject_key(frame: pd.DataFrame, id: str | Sequence[str], *, name: str = "su
     3    A        2    0    1
     4    A        1   30    0
     """
-    if not isinstance(frame, pd.DataFrame):
-        raise TypeError(f"expected a pandas DataFrame, got {type(frame).__name__}")
     if not isinstance(name, str) or not name:
         raise OptionError(f"name must be a non-empty string, got {name!r}")
     ids = as_id_list(id)

@@ -193,3 +193,20 @@ def test_gee_autoregressive_needs_rows_by_subject_in_time_order():
     np.testing.assert_allclose(fit(a).to_numpy(), fit(by_pandas).to_numpy(), rtol=1e-9)
     shuffled = a.sample(frac=1.0, random_state=3)
     assert not np.allclose(fit(shuffled).to_numpy(), fit(a).to_numpy(), rtol=1e-6)
+
+
+def test_subject_key_takes_other_frames_and_checks_its_options():
+    """subject_key reads polars and pyarrow frames as every other function does (the key is a pandas
+    Series over row numbers), refuses what is not a frame with FrameTypeError, and an unknown option
+    with the typed hint."""
+    import pyarrow as pa
+
+    df = pd.DataFrame({"site": ["B", "A", "B", "A"], "subject": [1, 1, 1, 2], "day": [0, 0, 30, 0]})
+    want = pfx.subject_key(df, id=["site", "subject"]).to_numpy()
+    assert (pfx.subject_key(pa.Table.from_pandas(df), id=["site", "subject"]).to_numpy() == want).all()
+    pl = pytest.importorskip("polars")
+    assert (pfx.subject_key(pl.from_pandas(df), id=["site", "subject"]).to_numpy() == want).all()
+    with pytest.raises(pfx.FrameTypeError):
+        pfx.subject_key({"site": ["A"]}, id="site")
+    with pytest.raises(pfx.UnknownOptionError, match="subject_key\\(\\) has no option groupby="):
+        pfx.subject_key(df, id="site", groupby="site")
